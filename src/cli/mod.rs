@@ -1,0 +1,1 @@
+//! Command-line argument types and one handler per subcommand.

@@ -1,0 +1,24 @@
+//! fringegauge turns a photo of a diffraction pattern into a measured dimension with an
+//! uncertainty budget after the GUM.
+//!
+//! Data flows one way: [`photo`] decodes the picture into linear light, [`scale`] maps
+//! pixels to millimetres on the screen, [`find`] locates spots, fringes and rings to a
+//! fraction of a pixel, [`optics`] solves the exact physics with [`uncertainty`]
+//! propagation, and [`record`] writes the JSON record, overlay and archive. [`fit`] holds
+//! the numerics shared by the stages; [`simulate`] renders synthetic photos with known
+//! truth for tests and the demo and shares no formula code with [`optics`].
+#![deny(missing_docs)]
+
+pub mod cli;
+pub mod error;
+pub mod find;
+pub mod fit;
+pub mod optics;
+pub mod photo;
+pub mod quantity;
+pub mod record;
+pub mod scale;
+pub mod simulate;
+pub mod uncertainty;
+
+pub use error::{Error, ExitCode};

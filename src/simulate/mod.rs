@@ -1,0 +1,1 @@
+//! Synthetic photos with known truth, for tests and the demo.
