@@ -16,6 +16,7 @@ pub mod fit;
 pub mod optics;
 pub mod photo;
 pub mod quantity;
+pub mod raster;
 pub mod record;
 pub mod scale;
 pub mod simulate;

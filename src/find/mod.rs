@@ -1,4 +1,10 @@
-//! Image → features in pixels with uncertainties.
+//! Image → features in pixels with uncertainties: bright blobs on a coarse map
+//! ([`blobs`]), sub-pixel spot positions by a censored elliptical Gaussian fit
+//! ([`spot`]) and the line the spots of a pattern lie on ([`axis`]).
+
+pub mod axis;
+pub mod blobs;
+pub mod spot;
 
 use thiserror::Error;
 
@@ -8,4 +14,7 @@ pub enum FindError {
     /// Nothing that looks like the expected pattern.
     #[error("{0}")]
     NoPattern(String),
+    /// The pattern is there but cannot be measured as it is.
+    #[error("{0}")]
+    Unmeasurable(String),
 }

@@ -1,11 +1,45 @@
-//! Numerics with no image types.
+//! Numerics with no image types: Levenberg–Marquardt least squares, straight lines,
+//! sub-sample extrema and FFT period estimation. Nothing here knows about photos, screens
+//! or physics; the stages above call these with plain numbers.
+
+pub mod line;
+pub mod lm;
+pub mod peak;
+pub mod spectral;
 
 use thiserror::Error;
 
 /// Why a fit failed.
-#[derive(Debug, Error)]
+#[derive(Debug, Error, Clone, PartialEq)]
 pub enum FitError {
-    /// Too few points for the model.
-    #[error("{0}")]
-    TooFewPoints(String),
+    /// Fewer observations than the model needs.
+    #[error("too few points to fit {model}: {got}, need at least {need}")]
+    TooFewPoints {
+        /// The model being fitted.
+        model: &'static str,
+        /// Points given.
+        got: usize,
+        /// Points needed.
+        need: usize,
+    },
+    /// The normal equations are singular: the data do not determine the parameters.
+    #[error("{model}: the data do not determine the parameters (singular system)")]
+    Singular {
+        /// The model being fitted.
+        model: &'static str,
+    },
+    /// The iteration stopped without meeting a convergence test.
+    #[error("{model} fit did not converge: {reason}")]
+    NotConverged {
+        /// The model being fitted.
+        model: &'static str,
+        /// What happened.
+        reason: String,
+    },
+    /// The residuals or parameters became NaN or infinite.
+    #[error("{model}: non-finite values during the fit")]
+    NonFinite {
+        /// The model being fitted.
+        model: &'static str,
+    },
 }
