@@ -10,10 +10,12 @@
 mod error;
 mod format;
 mod parse;
+mod pitch;
 
 pub use error::{Expected, QuantityError};
 pub use format::{format_in, format_si, round_significant};
-pub use parse::{parse, parse_pitch};
+pub use parse::parse;
+pub use pitch::parse_pitch;
 
 /// The physical dimension a value must have; values are stored in SI base units.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

@@ -1,15 +1,11 @@
-//! Reading values: `NUMBER[UNIT][±NUMBER[UNIT]]`, the GUM form `(NUMBER ± NUMBER) UNIT`
-//! (JCGM 100:2008 §7.2.2), and grating pitches given as a length, a fraction of a length or a
-//! line density.
+//! Reading values: `NUMBER[UNIT][±NUMBER[UNIT]]` and the GUM form `(NUMBER ± NUMBER) UNIT`
+//! (JCGM 100:2008 §7.2.2).
 
 use super::error::Expected;
-use super::{Dimension, Quantity, QuantityError, Unit, case_hint, find_unit, require_positive};
+use super::{Dimension, Quantity, QuantityError, Unit, case_hint, find_unit};
 
 /// The accepted spellings of ±. None overlaps another, so each match is one separator.
 const PM_SIGNS: [&str; 3] = ["±", "+/-", "+-"];
-
-/// Words that may stand between a count and `/unit` in a line density ("600 lines/mm").
-const LINE_WORDS: [&str; 4] = ["lines", "line", "lp", "l"];
 
 /// Parses `NUMBER[UNIT][±NUMBER[UNIT]]` for a value of the given dimension, returning it in
 /// SI base units. `+-` and `+/-` may stand for `±`, with spaces around it; an uncertainty
@@ -20,54 +16,19 @@ pub fn parse(text: &str, dim: Dimension) -> Result<Quantity, QuantityError> {
     parse_as(text, dim, Expected::Value(dim))
 }
 
-/// Parses a grating pitch: a length (`1.6um`, `1.6um±0.1um`), a fraction of a length
-/// (`1/600mm` is 1/600 mm; a ± part is the pitch's own uncertainty, in the same unit unless
-/// one is given) or a line density (`600/mm`, `600 lines/mm`, `600/mm±2/mm`, `600±2/mm`,
-/// `6000/cm`). A density n ± u(n) becomes the pitch 1/n with u = u(n)/n² (first order,
-/// JCGM 100:2008 eq. 10). The pitch must be > 0.
-pub fn parse_pitch(text: &str) -> Result<Quantity, QuantityError> {
-    let ctx = Ctx {
-        text,
-        dim: Dimension::Length,
-        expected: Expected::Pitch,
-    };
-    let t = text.trim();
-    if t.is_empty() {
-        return Err(QuantityError::Empty {
-            expected: ctx.expected,
-        });
-    }
-    let (value_part, unc_part) = split_pm(t, &ctx)?;
-    let q = if let Some((num, rest)) = value_part.split_once('/') {
-        if rest
-            .trim_start()
-            .starts_with(|c: char| c.is_ascii_digit() || c == '.')
-        {
-            fraction(num, rest, unc_part, &ctx)?
-        } else {
-            density(num, Some(rest), unc_part, value_part, &ctx)?
-        }
-    } else if unc_part.is_some_and(|u| u.contains('/')) {
-        density(value_part, None, unc_part, value_part, &ctx)?
-    } else {
-        parse_as(t, Dimension::Length, Expected::Pitch)?
-    };
-    require_positive(q, "pitch")
-}
-
 /// The text being read and what it should be, for building errors.
-struct Ctx<'a> {
-    text: &'a str,
-    dim: Dimension,
-    expected: Expected,
+pub(super) struct Ctx<'a> {
+    pub(super) text: &'a str,
+    pub(super) dim: Dimension,
+    pub(super) expected: Expected,
 }
 
 impl Ctx<'_> {
-    fn text(&self) -> String {
+    pub(super) fn text(&self) -> String {
         self.text.trim().to_string()
     }
 
-    fn malformed(&self, why: &str) -> QuantityError {
+    pub(super) fn malformed(&self, why: &str) -> QuantityError {
         QuantityError::Malformed(format!("`{}`: {why}", self.text.trim()))
     }
 
@@ -81,12 +42,16 @@ impl Ctx<'_> {
 }
 
 #[derive(Clone, Copy)]
-enum Side {
+pub(super) enum Side {
     Value,
     Uncertainty,
 }
 
-fn parse_as(text: &str, dim: Dimension, expected: Expected) -> Result<Quantity, QuantityError> {
+pub(super) fn parse_as(
+    text: &str,
+    dim: Dimension,
+    expected: Expected,
+) -> Result<Quantity, QuantityError> {
     let ctx = Ctx {
         text,
         dim,
@@ -182,7 +147,10 @@ fn split_parentheses<'a>(
 }
 
 /// Splits at the one ± (or `+-`, `+/-`), if there is one.
-fn split_pm<'a>(body: &'a str, ctx: &Ctx<'_>) -> Result<(&'a str, Option<&'a str>), QuantityError> {
+pub(super) fn split_pm<'a>(
+    body: &'a str,
+    ctx: &Ctx<'_>,
+) -> Result<(&'a str, Option<&'a str>), QuantityError> {
     let mut hits: Vec<(usize, usize)> = PM_SIGNS
         .iter()
         .flat_map(|sign| body.match_indices(sign).map(|(pos, s)| (pos, s.len())))
@@ -208,7 +176,7 @@ impl Ctx<'_> {
 }
 
 /// Reads a leading number and returns it, its text and the rest (the unit text, trimmed).
-fn number_and_unit<'a>(
+pub(super) fn number_and_unit<'a>(
     part: &'a str,
     ctx: &Ctx<'_>,
     side: Side,
@@ -294,7 +262,7 @@ fn number_end(s: &str) -> usize {
 }
 
 /// Looks a unit up for the expected dimension; `""` is no unit.
-fn resolve(unit: &str, ctx: &Ctx<'_>) -> Result<Option<&'static Unit>, QuantityError> {
+pub(super) fn resolve(unit: &str, ctx: &Ctx<'_>) -> Result<Option<&'static Unit>, QuantityError> {
     if unit.is_empty() {
         return Ok(None);
     }
@@ -313,135 +281,4 @@ fn resolve(unit: &str, ctx: &Ctx<'_>) -> Result<Option<&'static Unit>, QuantityE
             hint: case_hint(unit, ctx.dim),
         }),
     }
-}
-
-/// A length unit that must be present (the denominator of `600/mm`, the unit of `1/600mm`).
-fn required_length_unit(unit: &str, ctx: &Ctx<'_>) -> Result<&'static Unit, QuantityError> {
-    resolve(unit.trim(), ctx)?.ok_or_else(|| QuantityError::MissingUnit {
-        text: ctx.text(),
-        expected: ctx.expected,
-    })
-}
-
-/// `1/600mm`: the pitch is numerator/denominator in the unit.
-fn fraction(
-    numerator: &str,
-    denominator: &str,
-    unc: Option<&str>,
-    ctx: &Ctx<'_>,
-) -> Result<Quantity, QuantityError> {
-    let (top, _, top_unit) = number_and_unit(numerator, ctx, Side::Value)?;
-    if !top_unit.is_empty() {
-        return Err(ctx.malformed(
-            "in a fractional pitch only the denominator carries the unit, e.g. 1/600mm",
-        ));
-    }
-    let (bottom, _, bottom_unit) = number_and_unit(denominator, ctx, Side::Value)?;
-    let unit = required_length_unit(bottom_unit, ctx)?;
-    if bottom == 0.0 {
-        return Err(QuantityError::NotPositive {
-            name: "pitch".into(),
-            shown: ctx.text(),
-        });
-    }
-    let u = match unc {
-        None => None,
-        Some(s) => {
-            let (x, x_text, x_unit) = number_and_unit(s, ctx, Side::Uncertainty)?;
-            let x_unit = if x_unit.is_empty() {
-                unit
-            } else {
-                required_length_unit(x_unit, ctx)?
-            };
-            if x < 0.0 {
-                return Err(QuantityError::NegativeUncertainty {
-                    text: ctx.text(),
-                    expected: ctx.expected,
-                });
-            }
-            Some(x_unit.text_to_si(x_text, x).abs())
-        }
-    };
-    Ok(Quantity {
-        value: unit.to_si(top / bottom),
-        u,
-        dim: Dimension::Length,
-    })
-}
-
-/// A count before `/unit`, optionally followed by a word such as `lines`.
-fn density_count(s: &str, ctx: &Ctx<'_>, side: Side) -> Result<f64, QuantityError> {
-    let (n, _, word) = number_and_unit(s, ctx, side)?;
-    if word.is_empty() || LINE_WORDS.contains(&word) {
-        Ok(n)
-    } else {
-        Err(ctx.malformed(&format!(
-            "`{word}` before the / is not understood; write a line density as 600/mm, \
-             600 lines/mm or 600/mm±2/mm"
-        )))
-    }
-}
-
-/// `600/mm±2/mm` (and `600±2/mm`, `600/mm±2`): a line density, returned as the pitch.
-fn density(
-    count: &str,
-    per_unit: Option<&str>,
-    unc: Option<&str>,
-    value_text: &str,
-    ctx: &Ctx<'_>,
-) -> Result<Quantity, QuantityError> {
-    let n = density_count(count, ctx, Side::Value)?;
-    let unit = per_unit.map(|u| required_length_unit(u, ctx)).transpose()?;
-    let un = match unc {
-        None => None,
-        Some(s) => {
-            let (c, u) = match s.split_once('/') {
-                Some((c, u)) => (c, Some(required_length_unit(u, ctx)?)),
-                None => (s, None),
-            };
-            let x = match density_count(c, ctx, Side::Uncertainty) {
-                Err(QuantityError::Malformed(_)) => {
-                    return Err(ctx.malformed(
-                        "the uncertainty of a line density is a line density too, \
-                         e.g. 600/mm±2/mm or 600/mm±2",
-                    ));
-                }
-                other => other?,
-            };
-            Some((x, u))
-        }
-    };
-    let unc_unit = un.and_then(|(_, u)| u);
-    let Some(unit) = unit.or(unc_unit) else {
-        return Err(QuantityError::MissingUnit {
-            text: ctx.text(),
-            expected: ctx.expected,
-        });
-    };
-    let n_per_m = unit.per_si(n);
-    if !(n_per_m > 0.0 && n_per_m.is_finite()) {
-        return Err(QuantityError::NotPositive {
-            name: "line density".into(),
-            shown: value_text.trim().to_string(),
-        });
-    }
-    let u = match un {
-        None => None,
-        Some((x, _)) if x < 0.0 => {
-            return Err(QuantityError::NegativeUncertainty {
-                text: ctx.text(),
-                expected: ctx.expected,
-            });
-        }
-        Some((x, u)) => {
-            let u_n_per_m = u.unwrap_or(unit).per_si(x).abs();
-            // d = 1/n, so u(d) = |∂d/∂n|·u(n) = u(n)/n² (JCGM 100:2008 eq. 10).
-            Some(u_n_per_m / (n_per_m * n_per_m))
-        }
-    };
-    Ok(Quantity {
-        value: 1.0 / n_per_m,
-        u,
-        dim: Dimension::Length,
-    })
 }
