@@ -77,9 +77,10 @@ fn binned_window(
         for y in y0 + gy * bin..y0 + (gy + 1) * bin {
             raster.row_into(y, &mut row);
             for (gx, a) in acc.iter_mut().enumerate() {
-                for x in x0 + gx * bin..x0 + (gx + 1) * bin {
-                    a.0 += row[x] as f64;
-                    a.1 |= raster.clipped(x, y);
+                let start = x0 + gx * bin;
+                for (dx, v) in row[start..start + bin].iter().enumerate() {
+                    a.0 += *v as f64;
+                    a.1 |= raster.clipped(start + dx, y);
                 }
             }
         }

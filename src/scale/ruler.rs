@@ -146,7 +146,7 @@ fn best_band(
         let score = band_profile(raster, a, b, 2, off as f64, 0.5)
             .and_then(|p| {
                 let v = clean(&p.values);
-                est.dominant_period(&v, 6.0, v.len() as f64 / 6.0)
+                est.dominant_period(&v, MIN_PERIOD_SAMPLES, v.len() as f64 / 6.0)
             })
             .map_or(0.0, |e| e.peak_to_median);
         scores.push((off, score));
@@ -179,6 +179,36 @@ fn best_band(
         .ok_or_else(|| ScaleError::NotMeasured("the ruler band left the photo".into()))
 }
 
+/// Shortest tick period looked for, in profile samples (half-pixel steps): 3 px. Finer
+/// ticks are blurred by the lens and the JPEG and cannot be counted reliably.
+const MIN_PERIOD_SAMPLES: f64 = 6.0;
+
+/// The tick period in samples. The strongest period of a ruler's profile may be that of
+/// its longer 5 mm or 10 mm marks, so the fine subdivisions (1/5 and 1/10 of it) are
+/// looked for too, and the finest one that stands clearly out of the noise floor wins;
+/// taking a 5 mm mark for a 1 mm tick would make every length five times too short.
+fn tick_period(est: &mut PeriodEstimator, v: &[f64]) -> Option<f64> {
+    let n = v.len() as f64;
+    let coarse = est.dominant_period(v, MIN_PERIOD_SAMPLES, n / 6.0)?;
+    let power = |amplitude: f64| (amplitude * n / 2.0).powi(2);
+    let floor = power(coarse.amplitude) / coarse.peak_to_median;
+    for div in [10.0, 5.0] {
+        let want = coarse.period / div;
+        if want < MIN_PERIOD_SAMPLES {
+            continue;
+        }
+        // Perspective stretches the spacing along the ruler, which broadens both peaks, so
+        // the subdivision may sit a few per cent off a tenth of the coarse period.
+        if let Some(fine) = est.dominant_period(v, want * 0.9, want * 1.1) {
+            let close = ((fine.period - want) / want).abs() < 0.08;
+            if close && power(fine.amplitude) > 6.0 * floor {
+                return Some(fine.period);
+            }
+        }
+    }
+    Some(coarse.period)
+}
+
 /// Replaces NaN samples by the mean so the FFT sees no holes.
 fn clean(v: &[f64]) -> Vec<f64> {
     let finite: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
@@ -194,10 +224,8 @@ fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64)>, ScaleError> {
     let v = clean(&profile.values);
     let step = profile.step_px;
     let mut est = PeriodEstimator::new();
-    let period = est
-        .dominant_period(&v, 6.0, v.len() as f64 / 6.0)
-        .ok_or_else(|| ScaleError::NotMeasured("no tick period along the ruler".into()))?
-        .period; // in samples
+    let period = tick_period(&mut est, &v)
+        .ok_or_else(|| ScaleError::NotMeasured("no tick period along the ruler".into()))?; // samples
     let n = v.len();
     let sample = |x: f64| -> f64 {
         let x = x.clamp(0.0, (n - 1) as f64);
@@ -364,6 +392,13 @@ fn fit_ticks(ticks: &[(i64, f64)], length_px: f64) -> Result<TickFit, ScaleError
             let slope = |k: f64| (p[1] - p[0] * p[2]) / (1.0 + p[2] * k).powi(2);
             let drift = (slope(kl as f64) - slope(kf as f64)) / period;
             let rms = (report.cost / kept.len() as f64).sqrt();
+            if rms > 0.12 * period {
+                return Err(ScaleError::NotMeasured(format!(
+                    "the ruler's tick marks are not resolved cleanly: they scatter {rms:.1} px \
+                     about a regular spacing of {period:.1} px; photograph the ruler closer or \
+                     sharper, or use --points"
+                )));
+            }
             return Ok(TickFit {
                 ticks: kept,
                 params: p,
