@@ -1,4 +1,8 @@
-//! The physics of each experiment.
+//! The physics of each experiment, one file per kind. Nothing here knows about images:
+//! each solver takes feature positions with their uncertainties, the screen map and the
+//! experiment's inputs, and returns results with GUM budgets.
+
+pub mod grating;
 
 use thiserror::Error;
 
@@ -8,4 +12,10 @@ pub enum OpticsError {
     /// The features do not fit the experiment.
     #[error("{0}")]
     Unsolvable(String),
+    /// An input is out of the physical range.
+    #[error("{0}")]
+    BadInput(String),
+    /// The uncertainty could not be propagated.
+    #[error("uncertainty propagation failed: {0}")]
+    Uncertainty(#[from] crate::uncertainty::UncertaintyError),
 }

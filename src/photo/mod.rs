@@ -235,7 +235,9 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     hex
 }
 
-fn read_file(path: &Path, label: &str, limits: &Limits) -> Result<Vec<u8>, PhotoError> {
+/// Reads a photo file's bytes, refusing folders, empty files and files too large to be
+/// a photo within `limits`; `label` names it in messages.
+pub fn read_file(path: &Path, label: &str, limits: &Limits) -> Result<Vec<u8>, PhotoError> {
     let io_error = |source: std::io::Error| {
         if source.kind() == std::io::ErrorKind::NotFound {
             PhotoError::NotFound { path: label.into() }
