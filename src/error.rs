@@ -41,6 +41,9 @@ pub enum Error {
     /// Writing the record, overlay or archive failed, or would overwrite.
     #[error(transparent)]
     Record(#[from] crate::record::RecordError),
+    /// A synthetic photo could not be made or saved.
+    #[error(transparent)]
+    Simulate(#[from] crate::simulate::SimError),
     /// Bad usage that clap did not catch (conflicting or missing inputs).
     #[error("{0}")]
     Usage(String),
@@ -58,9 +61,11 @@ impl Error {
     /// The exit code this error maps to.
     pub fn exit_code(&self) -> ExitCode {
         match self {
-            Error::Photo(_) | Error::Quantity(_) | Error::Usage(_) | Error::Io { .. } => {
-                ExitCode::BadInput
-            }
+            Error::Photo(_)
+            | Error::Quantity(_)
+            | Error::Usage(_)
+            | Error::Io { .. }
+            | Error::Simulate(_) => ExitCode::BadInput,
             Error::Scale(e) => e.exit_code(),
             Error::Record(e) => e.exit_code(),
             Error::Find(_) | Error::Fit(_) | Error::Optics(_) => ExitCode::NotMeasured,

@@ -1,1 +1,64 @@
-//! Command-line argument types and one handler per subcommand.
+//! Command-line argument types (clap derive) and one handler per subcommand. Handlers
+//! sequence the library's stages and write outputs; the algorithms live below.
+
+pub mod args;
+pub mod grating;
+pub mod inputs;
+pub mod output;
+pub mod setup;
+pub mod simulate;
+pub mod tools;
+
+use crate::{Error, ExitCode};
+use clap::{Parser, Subcommand};
+
+/// fringegauge: a measured dimension, with its uncertainty, from a photo of a
+/// diffraction pattern.
+#[derive(Debug, Parser)]
+#[command(
+    name = "fringegauge",
+    version,
+    about = "Measure pitch, width or wavelength from a photo of a diffraction pattern, with a GUM uncertainty budget",
+    long_about = "fringegauge corrects the camera's view of the screen, calibrates pixels to \
+                  millimetres from a scale in the frame, finds the pattern's features to a \
+                  fraction of a pixel, solves the exact physics and reports the result with an \
+                  uncertainty budget after the GUM (JCGM 100:2008).",
+    after_long_help = args::LASER_CAUTION
+)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+// Parsed once per process: the size of the largest variant costs nothing.
+#[allow(clippy::large_enum_variant)]
+pub enum Command {
+    /// Pitch of a grating from its orders (or the wavelength, given the pitch)
+    #[command(after_long_help = args::LASER_CAUTION)]
+    Grating(grating::GratingArgs),
+    /// Render a synthetic photo with known truth (PHOTO.truth.json beside it)
+    Simulate(simulate::SimulateArgs),
+    /// Simulate a grating photo, measure it, and say where the files went
+    Demo(tools::DemoArgs),
+    /// Print the JSON Schema of the record
+    Schema,
+    /// List or verify an archive folder
+    Archive(tools::ArchiveArgs),
+}
+
+/// Runs a parsed command line.
+pub fn run(cli: Cli) -> Result<ExitCode, Error> {
+    match cli.command {
+        Command::Grating(a) => grating::run(&a),
+        Command::Simulate(a) => simulate::run(&a),
+        Command::Demo(a) => tools::demo(&a),
+        Command::Schema => {
+            println!("{}", crate::record::schema::schema_json());
+            Ok(ExitCode::Measured)
+        }
+        Command::Archive(a) => tools::archive(&a),
+    }
+}

@@ -1,0 +1,233 @@
+//! What every measuring subcommand shares: the stage clock, reading the photo, making the
+//! scale from the scale flags, and writing the record, overlay, report and archive.
+
+use super::args::{OutputArgs, ScaleArgs, parse_two_points};
+use super::inputs::{InputBook, positive_flag};
+use crate::photo::{self, Channel, Photo};
+use crate::quantity::Dimension;
+use crate::raster::Raster;
+use crate::record::overlay::{self, Mark};
+use crate::record::{self, Record, RecordError};
+use crate::scale::ruler::{self, RulerClass, RulerSpec};
+use crate::scale::{ScaleMethod, ScreenMap, points};
+use crate::{Error, ExitCode};
+use nalgebra::Vector2;
+use std::path::Path;
+use std::time::Instant;
+
+/// Wall time per pipeline stage.
+pub struct Clock {
+    last: Instant,
+    /// Stage names and milliseconds, in order.
+    pub stages: Vec<(String, f64)>,
+}
+
+impl Default for Clock {
+    fn default() -> Self {
+        Clock {
+            last: Instant::now(),
+            stages: Vec::new(),
+        }
+    }
+}
+
+impl Clock {
+    /// Ends the current stage under `name`.
+    pub fn lap(&mut self, name: &str) {
+        let now = Instant::now();
+        self.stages
+            .push((name.to_string(), (now - self.last).as_secs_f64() * 1e3));
+        self.last = now;
+    }
+}
+
+/// Refuses up front to overwrite output files, so no work is wasted and nothing is lost.
+pub fn check_outputs(out: &OutputArgs) -> Result<(), Error> {
+    if out.force {
+        return Ok(());
+    }
+    for path in [&out.overlay, &out.report].into_iter().flatten() {
+        if path.exists() {
+            return Err(RecordError::Exists(path.display().to_string()).into());
+        }
+    }
+    Ok(())
+}
+
+/// Reads and decodes the photo, keeping its bytes for the archive.
+pub fn load_photo(path: &Path) -> Result<(Photo, Vec<u8>), Error> {
+    let label = path.display().to_string();
+    let limits = photo::Limits::default();
+    let bytes = photo::read_file(path, &label, &limits)?;
+    let photo = photo::decode(&bytes, &label, &limits)?;
+    Ok((photo, bytes))
+}
+
+/// The channel named with `--channel`, if any.
+pub fn forced_channel(flag: Option<&str>) -> Result<Option<Channel>, Error> {
+    flag.map(|text| {
+        text.parse::<Channel>()
+            .map_err(|e: photo::ParseChannelError| Error::Usage(e.to_string()))
+    })
+    .transpose()
+}
+
+/// Makes the screen map from exactly one of the scale flags.
+pub fn screen_map(
+    raster: &dyn Raster,
+    args: &ScaleArgs,
+    book: &mut InputBook,
+) -> Result<ScreenMap, Error> {
+    let given = [
+        args.ruler.is_some(),
+        args.points.is_some(),
+        args.mm_per_px.is_some(),
+    ];
+    match given.iter().filter(|g| **g).count() {
+        0 => {
+            return Err(Error::Usage(
+                "no scale given: use one of --ruler X1,Y1,X2,Y2, --points X1,Y1,X2,Y2 --length L, \
+                 or --mm-per-px VALUE"
+                    .into(),
+            ));
+        }
+        1 => {}
+        _ => {
+            return Err(Error::Usage(
+                "give exactly one scale: --ruler, --points or --mm-per-px".into(),
+            ));
+        }
+    }
+    if let Some(text) = &args.ruler {
+        if text.trim() == "auto" {
+            return Err(Error::Usage(
+                "--ruler auto is not available yet: give the rough ends of the ruler stretch as \
+                 --ruler X1,Y1,X2,Y2"
+                    .into(),
+            ));
+        }
+        let [x1, y1, x2, y2] = parse_two_points("ruler", text)?;
+        let tick = positive_flag(
+            "tick",
+            args.tick.as_deref().unwrap_or("1mm"),
+            Dimension::Length,
+        )?;
+        let class = match &args.ruler_class {
+            Some(c) => RulerClass::parse(c).ok_or_else(|| {
+                Error::Usage(format!("--ruler-class takes I, II or III, got `{c}`"))
+            })?,
+            None => {
+                book.assumptions
+                    .push("ruler accuracy class not given: class II assumed (MI-008)".to_string());
+                RulerClass::II
+            }
+        };
+        let spec = RulerSpec {
+            from_px: Vector2::new(x1, y1),
+            to_px: Vector2::new(x2, y2),
+            tick_mm: tick.value * 1e3,
+            tick_u_rel: tick.u.map(|u| u / tick.value),
+            class,
+        };
+        let (map, _fit) = ruler::measure(raster, &spec)?;
+        return Ok(map);
+    }
+    if let Some(text) = &args.points {
+        let [x1, y1, x2, y2] = parse_two_points("points", text)?;
+        let length = args
+            .length
+            .as_deref()
+            .ok_or_else(|| Error::Usage("--points needs --length".into()))?;
+        let q = positive_flag("length", length, Dimension::Length)?;
+        let map = points::from_points(
+            Vector2::new(x1, y1),
+            Vector2::new(x2, y2),
+            q.value * 1e3,
+            q.u.map(|u| u / q.value),
+        )?;
+        return Ok(map);
+    }
+    let text = args.mm_per_px.as_deref().unwrap_or_default();
+    let q = positive_flag("mm-per-px", text, Dimension::Dimensionless)?;
+    let mut map = ScreenMap::uniform(ScaleMethod::MmPerPx, q.value)?;
+    let u_rel = match q.u {
+        Some(u) => u / q.value,
+        None => {
+            // Common practice: a scale carried over from an earlier calibration is good to
+            // about half a per cent unless its own record says better.
+            let half = 0.005;
+            book.assumptions.push(format!(
+                "--mm-per-px given without uncertainty: ±{:.1} % (rectangular) assumed",
+                half * 100.0
+            ));
+            half / 3f64.sqrt()
+        }
+    };
+    map = map.with_component("given mm per px", u_rel);
+    Ok(map)
+}
+
+/// Writes what the output flags ask for and prints the report. Returns the exit code.
+pub fn emit(
+    record: &mut Record,
+    photo: &Photo,
+    photo_bytes: &[u8],
+    marks: &[Mark],
+    out: &OutputArgs,
+    clock: &mut Clock,
+) -> Result<ExitCode, Error> {
+    let wants_overlay = out.overlay.is_some() || out.report.is_some() || out.archive.is_some();
+    let overlay_png = if wants_overlay {
+        let (preview, factor) = photo.preview_rgb8(1600);
+        let img = overlay::render_overlay(&preview, factor, marks);
+        Some(overlay::encode_png(&img)?)
+    } else {
+        None
+    };
+    if let (Some(path), Some(png)) = (&out.overlay, &overlay_png) {
+        record::atomic::write_atomic(path, png, out.force)?;
+    }
+    clock.lap("output");
+    for (stage, ms) in &clock.stages {
+        record.timings_ms.add(stage, *ms);
+    }
+    let html = out
+        .report
+        .as_ref()
+        .map(|_| record::html::render_html(record, overlay_png.as_deref()));
+    if let (Some(path), Some(html)) = (&out.report, &html) {
+        record::atomic::write_atomic(path, html.as_bytes(), out.force)?;
+    }
+    if let Some(dir) = &out.archive {
+        let name = Path::new(&record.photo.path)
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "photo".into());
+        let entry = record::archive::ArchiveEntry {
+            record,
+            sample: out.sample.as_deref(),
+            photo_bytes,
+            photo_file_name: &name,
+            overlay_png: overlay_png.as_deref(),
+            report_html: html.as_deref(),
+        };
+        let at = record::archive::archive_measurement(dir, &entry, out.force)?;
+        eprintln!("archived in {}", at.display());
+    }
+    let text = record::text::render_text(record);
+    if out.json {
+        eprint!("{text}");
+        let json = serde_json::to_string_pretty(record)
+            .map_err(|e| Error::Usage(format!("cannot serialise the record: {e}")))?;
+        println!("{json}");
+    } else {
+        print!("{text}");
+    }
+    if out.timings {
+        eprintln!("timings (ms):");
+        for (stage, ms) in record.timings_ms.iter() {
+            eprintln!("  {stage:<10} {ms:>9.1}");
+        }
+    }
+    Ok(ExitCode::Measured)
+}
