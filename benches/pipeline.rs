@@ -1,1 +1,87 @@
-fn main() {}
+//! Speed of the whole `grating` measurement against the floor it is judged by: decoding
+//! the same 12-megapixel JPEG alone (DESIGN §6: the whole within 1.5× the decode).
+//! The photo is simulated once into a temporary folder.
+
+use clap::Parser;
+use criterion::{Criterion, criterion_group, criterion_main};
+use fringegauge::cli::{Cli, run};
+use fringegauge::simulate::{self, CameraSpec, Effects, Framing, GratingSetup, Scene};
+use std::hint::black_box;
+use std::path::PathBuf;
+
+struct Photo12 {
+    _dir: tempfile::TempDir,
+    path: PathBuf,
+    ruler: String,
+}
+
+fn photo_12mp() -> Photo12 {
+    let dir = tempfile::tempdir().expect("temporary folder");
+    let path = dir.path().join("grating-12mp.jpg");
+    let setup = GratingSetup {
+        pitch_m: 1e-3 / 600.0,
+        distance_m: 1.25,
+        ..GratingSetup::default()
+    };
+    let camera = CameraSpec {
+        yaw_rad: 6f64.to_radians(),
+        framing: Framing::Auto {
+            max_order: 2,
+            margin: 0.06,
+        },
+        ..CameraSpec::twelve_megapixel()
+    };
+    let sim = simulate::render_grating(&setup, &Scene::default(), &camera, &Effects::default(), 12)
+        .expect("12 MP photo");
+    sim.write(&path, 92, true).expect("written");
+    let r = sim.truth.ruler.expect("ruler");
+    let (s, e) = (r.start_px.expect("start"), r.end_px.expect("end"));
+    let p = |f: f64| [s[0] + f * (e[0] - s[0]), s[1] + f * (e[1] - s[1])];
+    let (a, b) = (p(0.05), p(0.95));
+    let ruler = format!("{:.0},{:.0},{:.0},{:.0}", a[0], a[1], b[0], b[1]);
+    Photo12 {
+        _dir: dir,
+        path,
+        ruler,
+    }
+}
+
+fn benches(c: &mut Criterion) {
+    let photo = photo_12mp();
+    let bytes = std::fs::read(&photo.path).expect("read");
+    let mut group = c.benchmark_group("12MP");
+    group.sample_size(20);
+    group.bench_function("decode alone (image crate)", |b| {
+        b.iter(|| black_box(image::load_from_memory(black_box(&bytes)).expect("decodes")))
+    });
+    group.bench_function("fringegauge load", |b| {
+        b.iter(|| {
+            black_box(
+                fringegauge::photo::decode(&bytes, "bench", &fringegauge::photo::Limits::default())
+                    .expect("decodes"),
+            )
+        })
+    });
+    let path = photo.path.display().to_string();
+    group.bench_function("grating end to end", |b| {
+        b.iter(|| {
+            let cli = Cli::parse_from([
+                "fringegauge",
+                "grating",
+                &path,
+                "--wavelength",
+                "650nm±3nm",
+                "--distance",
+                "1.25m±2mm",
+                "--ruler",
+                &photo.ruler,
+                "--json",
+            ]);
+            black_box(run(cli).expect("measured"))
+        })
+    });
+    group.finish();
+}
+
+criterion_group!(pipeline, benches);
+criterion_main!(pipeline);
