@@ -1,1 +1,126 @@
-//! Synthetic photos with known truth, for tests and the demo.
+//! Synthetic photos with known truth, for tests, benches and the demo.
+//!
+//! The simulator shares no formula with [`crate::optics`]: the far field is the Fourier
+//! transform of the grating's sampled transmission under a Gaussian beam (the angular
+//! spectrum of plane waves, Goodman, *Introduction to Fourier Optics*, ch. 3), every plane
+//! wave is a ray intersected with the screen plane in 3-D, the photo is a pinhole camera's
+//! view through the plane's homography (Hartley & Zisserman, *Multiple View Geometry*, §8.1),
+//! and the camera adds speckle, blur, shot and read noise and the sRGB curve of
+//! IEC 61966-2-1. The truth of every photo (inputs, where each order's light lands in
+//! millimetres and pixels, the ruler, grid crossings, the homography) goes beside it.
+//!
+//! ```no_run
+//! use fringegauge::simulate::*;
+//! let photo = render_grating(
+//!     &GratingSetup::default(),
+//!     &Scene::default(),
+//!     &CameraSpec::default(),
+//!     &Effects::default(),
+//!     7,
+//! )?;
+//! photo.write(std::path::Path::new("cd.jpg"), 92, false)?;
+//! # Ok::<(), SimError>(())
+//! ```
+
+mod camera;
+mod clutter;
+mod effects;
+mod farfield;
+mod output;
+mod photo;
+mod render;
+mod scene;
+mod screen;
+mod spots;
+mod truth;
+
+#[cfg(test)]
+mod tests;
+
+pub use camera::{Camera, CameraSpec, Framing};
+pub use effects::Effects;
+pub use farfield::{GratingProfile, GratingSetup};
+pub use output::truth_path;
+pub use scene::{Clutter, GraphPaper, RoomLight, Ruler, Scene, Surface};
+pub use truth::{
+    CameraTruth, GratingInputs, GridTruth, OrderTruth, RulerTruth, ScreenFrame, SheetTruth, Truth,
+};
+
+pub(crate) use photo::render;
+use std::path::PathBuf;
+use thiserror::Error;
+
+/// Why a photo could not be simulated or saved.
+#[derive(Debug, Error)]
+pub enum SimError {
+    /// An input is out of range or not a number.
+    #[error("simulation input {name} = {value} is not accepted: expected {expected}")]
+    BadInput {
+        /// The input.
+        name: &'static str,
+        /// The value seen.
+        value: f64,
+        /// What is accepted.
+        expected: &'static str,
+    },
+    /// The far field would need more samples than allowed.
+    #[error("{0}")]
+    TooFine(String),
+    /// Light propagates but no order meets the screen.
+    #[error("no diffraction order reaches the screen: {0}")]
+    NoOrderReachesScreen(String),
+    /// The camera's view holds no part of the screen.
+    #[error("the camera sees no screen: {0}")]
+    CameraSeesNoScreen(String),
+    /// The photo path's extension is not one we write.
+    #[error("cannot tell the image format from extension {0:?}: use .jpg, .jpeg or .png")]
+    Extension(String),
+    /// A file exists and `force` was not given.
+    #[error("{} exists; pass force to overwrite it", path.display())]
+    Exists {
+        /// The existing file.
+        path: PathBuf,
+    },
+    /// Reading or writing a file failed.
+    #[error("{context} {}: {source}", path.display())]
+    Io {
+        /// What was being done.
+        context: &'static str,
+        /// The file.
+        path: PathBuf,
+        /// The underlying error.
+        source: std::io::Error,
+    },
+    /// The image encoder failed.
+    #[error("encoding {}: {source}", path.display())]
+    Encode {
+        /// The file.
+        path: PathBuf,
+        /// The underlying error.
+        source: image::ImageError,
+    },
+    /// The truth could not be serialized.
+    #[error("serializing the truth: {0}")]
+    Json(serde_json::Error),
+}
+
+/// A rendered photo and its truth.
+#[derive(Debug, Clone)]
+pub struct SimPhoto {
+    /// The 8-bit sRGB image.
+    pub image: image::RgbImage,
+    /// What is known about it.
+    pub truth: Truth,
+}
+
+/// Renders a photo of a grating's pattern on a screen. `seed` drives every random choice
+/// (texture, speckle, noise, clutter), so equal inputs give equal photos.
+pub fn render_grating(
+    setup: &GratingSetup,
+    scene: &Scene,
+    camera: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+) -> Result<SimPhoto, SimError> {
+    render(setup, scene, camera, effects, seed, true)
+}
