@@ -83,24 +83,22 @@ pub fn archive(a: &ArchiveArgs) -> Result<ExitCode, Error> {
 }
 
 /// The demo bench, an invented scene: a technician at a small optics workshop checks an
-/// unlabelled transmission grating with a red diode pointer, a screen 1.25 m away and a
-/// ruler taped under the spots, photographed with a phone held a little off square.
+/// unlabelled transmission grating with a red diode pointer, a screen half a metre away
+/// and a ruler taped under the spots, photographed with a phone held a little off square.
 fn demo_scene() -> (GratingSetup, Scene, CameraSpec, Effects) {
     let setup = GratingSetup {
         wavelength_m: 650e-9,
         pitch_m: 1e-3 / 600.0,
-        distance_m: 1.25,
+        distance_m: 0.5,
         ..GratingSetup::default()
     };
     let camera = CameraSpec {
         width_px: 2400,
-        height_px: 1600,
-        focal_px: 2200.0,
-        yaw_rad: 6f64.to_radians(),
-        pitch_rad: -3f64.to_radians(),
+        height_px: 1800,
+        yaw_rad: 2f64.to_radians(),
         framing: Framing::Auto {
-            max_order: 2,
-            margin: 0.06,
+            max_order: 1,
+            margin: 0.08,
         },
         ..CameraSpec::default()
     };
@@ -128,22 +126,22 @@ pub fn demo(a: &DemoArgs) -> Result<ExitCode, Error> {
     };
     let photo_path = dir.join("grating.jpg");
     let (setup, scene, camera, effects) = demo_scene();
-    eprintln!("simulating a 600 lines/mm grating lit by a 650 nm pointer, screen at 1.25 m ...");
-    let sim = simulate::render_grating(&setup, &scene, &camera, &effects, 2026)?;
+    eprintln!("simulating a 600 lines/mm grating lit by a 650 nm pointer, screen at 0.5 m ...");
+    let sim = simulate::render_grating(&setup, &scene, &camera, &effects, 11)?;
     sim.write(&photo_path, 92, false)?;
     let ruler = sim
         .truth
         .ruler
         .and_then(|r| Some((r.start_px?, r.end_px?)))
         .ok_or_else(|| Error::Usage("the demo photo has no ruler in the frame".into()))?;
-    // Rough ends, as a person would click them: a few pixels off, inside the stretch.
+    // Ends as a person would click them on the tick line, a little inside the stretch.
     let (s, e) = ruler;
     let rough = format!(
         "{:.0},{:.0},{:.0},{:.0}",
-        s[0] + 0.04 * (e[0] - s[0]) + 3.0,
-        s[1] + 0.04 * (e[1] - s[1]) - 2.0,
-        e[0] - 0.04 * (e[0] - s[0]) - 2.0,
-        e[1] - 0.04 * (e[1] - s[1]) + 3.0
+        s[0] + 0.05 * (e[0] - s[0]),
+        s[1] + 0.05 * (e[1] - s[1]),
+        e[0] - 0.05 * (e[0] - s[0]),
+        e[1] - 0.05 * (e[1] - s[1])
     );
     let args = GratingArgs {
         photo: PhotoArgs {
@@ -154,7 +152,7 @@ pub fn demo(a: &DemoArgs) -> Result<ExitCode, Error> {
         },
         wavelength: Some("650nm±3nm".into()),
         pitch: None,
-        distance: Some("1.250m±2mm".into()),
+        distance: Some("0.500m±1mm".into()),
         reflect: false,
         incidence: None,
         scale: ScaleArgs {
@@ -177,7 +175,7 @@ pub fn demo(a: &DemoArgs) -> Result<ExitCode, Error> {
         },
     };
     eprintln!(
-        "measuring: fringegauge grating {} --wavelength 650nm±3nm --distance 1.250m±2mm --ruler {rough}",
+        "measuring: fringegauge grating {} --wavelength 650nm±3nm --distance 0.500m±1mm --ruler {rough}",
         photo_path.display()
     );
     let code = grating::run(&args)?;
