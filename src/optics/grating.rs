@@ -424,6 +424,19 @@ pub struct GratingSolution {
     pub warnings: Vec<String>,
 }
 
+fn order_points(along: &[f64], orders: &[i32], u_mm: &[f64]) -> Vec<OrderPoint> {
+    along
+        .iter()
+        .zip(orders)
+        .zip(u_mm)
+        .map(|((&along_mm, &order), &u_mm)| OrderPoint {
+            order,
+            along_mm,
+            u_mm,
+        })
+        .collect()
+}
+
 /// Along-line positions of the spots in screen mm, the line fitted through them and
 /// oriented so that order numbers increase along it.
 fn along_positions(mm: &[Vector2<f64>], weights: &[f64], orders: &[i32]) -> Option<Vec<f64>> {
@@ -489,16 +502,7 @@ pub fn solve(
         inputs.incidence.value,
         inputs.distance.value * 1e3,
     );
-    let points: Vec<OrderPoint> = along
-        .iter()
-        .zip(&orders)
-        .zip(&u_mm)
-        .map(|((&a, &m), &u)| OrderPoint {
-            order: m,
-            along_mm: a,
-            u_mm: u,
-        })
-        .collect();
+    let points = order_points(&along, &orders, &u_mm);
     let fit = fit_orders(
         &points,
         mode,
@@ -568,16 +572,7 @@ pub fn solve(
             .collect();
         let along = along_positions(&mm, &weights, &orders)
             .ok_or_else(|| OpticsError::Unsolvable("the spots do not define a line".into()))?;
-        let pts: Vec<OrderPoint> = along
-            .iter()
-            .zip(&orders)
-            .zip(&u_mm)
-            .map(|((&a, &m), &u)| OrderPoint {
-                order: m,
-                along_mm: a,
-                u_mm: u,
-            })
-            .collect();
+        let pts = order_points(&along, &orders, &u_mm);
         let f = fit_orders(&pts, mode, incidence, distance_mm, fit.ratio)?;
         let measurand = if is_pitch {
             known / f.ratio

@@ -184,11 +184,7 @@ pub(super) fn hash_prefix(sha: &str) -> String {
     sha.chars().take(8).collect()
 }
 
-/// SHA-256 of bytes, lower-case hex. The photo stage computes the same hash of the file it
-/// decodes; this one stays private to the archive.
-fn sha256_hex(bytes: &[u8]) -> String {
-    format!("{:x}", Sha256::digest(bytes))
-}
+use crate::photo::sha256_hex;
 
 pub(super) fn sha256_file(path: &Path) -> Result<String, RecordError> {
     let mut file = std::fs::File::open(path).map_err(|e| RecordError::io(path, e))?;
