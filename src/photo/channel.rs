@@ -12,9 +12,11 @@
 use super::Photo;
 use super::decode::Samples;
 use super::plane::{CLIP_CODE_8, CLIP_CODE_16, LUMA_WEIGHTS, lut8, lut16};
+use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 use std::fmt;
 use std::str::FromStr;
+use std::sync::OnceLock;
 
 /// A colour channel, or linear luminance.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -99,37 +101,39 @@ pub struct ChannelChoice {
 
 /// Samples on the sparse grid: about this many, whatever the photo size.
 const TARGET_SAMPLES: usize = 750_000;
-/// Histogram bins over linear 0..1; fine enough that an 8-bit code step near black
-/// (3e-4 in linear light) spans some 20 bins.
-const BINS: usize = 65536;
+/// Bins of the luma histogram over linear 0..1; fine enough that an 8-bit code step near
+/// black (3e-4 in linear light) spans some 20 bins. Colour channels are histogrammed by
+/// code, which is exact.
+const LUMA_BINS: usize = 65536;
 /// Consistency constant of the MAD for a normal distribution, 1/Φ⁻¹(3/4).
 const MAD_TO_SIGMA: f64 = 1.4826;
 /// Colour channels with less than this share of the strongest colour signal are too weak
 /// to measure on.
 const MIN_SIGNAL_SHARE: f64 = 0.25;
 
+/// Counts per bin, and how many of them were clipped. Bin values (linear light) rise
+/// with the bin index.
+#[derive(Clone)]
 struct Histogram {
     count: Vec<u32>,
     clipped: Vec<u32>,
-    n: u64,
 }
 
 impl Histogram {
-    fn new() -> Self {
+    fn new(bins: usize) -> Self {
         Histogram {
-            count: vec![0; BINS],
-            clipped: vec![0; BINS],
-            n: 0,
+            count: vec![0; bins],
+            clipped: vec![0; bins],
         }
     }
 
-    #[inline]
-    fn add(&mut self, v: f32, clipped: bool) {
-        let bin = ((v.clamp(0.0, 1.0) * (BINS - 1) as f32) + 0.5) as usize;
-        let bin = bin.min(BINS - 1);
-        self.count[bin] += 1;
-        self.clipped[bin] += u32::from(clipped);
-        self.n += 1;
+    fn merge(&mut self, other: &Histogram) {
+        for (a, b) in self.count.iter_mut().zip(&other.count) {
+            *a += b;
+        }
+        for (a, b) in self.clipped.iter_mut().zip(&other.clipped) {
+            *a += b;
+        }
     }
 
     /// Smallest bin whose cumulative count reaches `rank` (1-based).
@@ -141,12 +145,13 @@ impl Histogram {
                 return bin;
             }
         }
-        BINS - 1
+        self.count.len() - 1
     }
 
-    fn stats(&self, channel: Channel) -> ChannelStats {
-        let scale = 1.0 / (BINS - 1) as f64;
-        if self.n == 0 {
+    /// `values[bin]` is the linear value of each bin, non-decreasing.
+    fn stats(&self, channel: Channel, values: &[f32]) -> ChannelStats {
+        let n: u64 = self.count.iter().map(|&c| u64::from(c)).sum();
+        if n == 0 {
             return ChannelStats {
                 channel,
                 signal: 0.0,
@@ -154,22 +159,40 @@ impl Histogram {
                 clipped_fraction: 0.0,
             };
         }
-        let half = self.n.div_ceil(2);
+        let value = |bin: usize| f64::from(values[bin]);
+        let half = n.div_ceil(2);
         let median = self.bin_at_rank(half);
-        let high = self.bin_at_rank(((self.n as f64) * 0.999).ceil().max(1.0) as u64);
-        // MAD: grow a window around the median until it holds half the samples.
+        let high = self.bin_at_rank(((n as f64) * 0.999).ceil().max(1.0) as u64);
+        // MAD: grow a window around the median, always by the nearer side in value,
+        // until it holds half the samples.
+        let (mut lo, mut hi) = (median, median);
         let mut inside = u64::from(self.count[median]);
-        let mut mad = 0usize;
+        let mut mad = 0.0f64;
         while inside < half {
-            mad += 1;
-            if let Some(lo) = median.checked_sub(mad) {
-                inside += u64::from(self.count[lo]);
-            }
-            if let Some(&c) = self.count.get(median + mad) {
-                inside += u64::from(c);
+            let below = lo.checked_sub(1).map(|b| value(median) - value(b));
+            let above = (hi + 1 < self.count.len()).then(|| value(hi + 1) - value(median));
+            match (below, above) {
+                (Some(d), Some(u)) if d <= u => {
+                    lo -= 1;
+                    inside += u64::from(self.count[lo]);
+                    mad = d;
+                }
+                (_, Some(u)) => {
+                    hi += 1;
+                    inside += u64::from(self.count[hi]);
+                    mad = u;
+                }
+                (Some(d), None) => {
+                    lo -= 1;
+                    inside += u64::from(self.count[lo]);
+                    mad = d;
+                }
+                (None, None) => break,
             }
         }
-        let bright_from = median + (high - median).div_ceil(2);
+        let signal = value(high) - value(median);
+        let threshold = value(median) + 0.5 * signal;
+        let bright_from = values[..self.count.len()].partition_point(|&v| f64::from(v) < threshold);
         let bright: u64 = self.count[bright_from..]
             .iter()
             .map(|&c| u64::from(c))
@@ -180,8 +203,8 @@ impl Histogram {
             .sum();
         ChannelStats {
             channel,
-            signal: (high - median) as f64 * scale,
-            noise: MAD_TO_SIGMA * mad as f64 * scale,
+            signal,
+            noise: MAD_TO_SIGMA * mad,
             clipped_fraction: if bright == 0 {
                 0.0
             } else {
@@ -189,6 +212,20 @@ impl Histogram {
             },
         }
     }
+}
+
+fn luma_bin_values() -> &'static [f32] {
+    static VALUES: OnceLock<Vec<f32>> = OnceLock::new();
+    VALUES.get_or_init(|| {
+        (0..LUMA_BINS)
+            .map(|b| b as f32 / (LUMA_BINS - 1) as f32)
+            .collect()
+    })
+}
+
+#[inline]
+fn luma_bin(y: f32) -> usize {
+    (((y.clamp(0.0, 1.0) * (LUMA_BINS - 1) as f32) + 0.5) as usize).min(LUMA_BINS - 1)
 }
 
 /// Grid step so that about [`TARGET_SAMPLES`] pixels are read (1 on small photos).
@@ -199,68 +236,116 @@ fn grid_step(width: usize, height: usize) -> usize {
         .max(1)
 }
 
+/// Sample code type: 8- or 16-bit.
+trait Code: Copy + Into<usize> + Sync {
+    const CLIP: usize;
+    const BINS: usize;
+    fn lut() -> &'static [f32];
+}
+
+impl Code for u8 {
+    const CLIP: usize = CLIP_CODE_8 as usize;
+    const BINS: usize = 256;
+    fn lut() -> &'static [f32] {
+        lut8()
+    }
+}
+
+impl Code for u16 {
+    const CLIP: usize = CLIP_CODE_16 as usize;
+    const BINS: usize = 65536;
+    fn lut() -> &'static [f32] {
+        lut16()
+    }
+}
+
+/// Histograms (by code for each stored channel, by value for luma when colour) over the
+/// grid rows, split into one contiguous part per worker thread.
+fn histograms<T: Code>(photo: &Photo, s: &[T], step: usize) -> Vec<Histogram> {
+    let (w, spp, nc) = (photo.width(), photo.spp(), photo.channels());
+    let grid_rows: Vec<usize> = (step / 2..photo.height()).step_by(step).collect();
+    let parts = rayon::current_num_threads().clamp(1, grid_rows.len().max(1));
+    let per_part = grid_rows.len().div_ceil(parts).max(1);
+    let lut = T::lut();
+    let build = |rows: &[usize]| {
+        let mut codes: Vec<Vec<u32>> = vec![vec![0; T::BINS]; nc];
+        let mut luma = Histogram::new(if nc == 3 { LUMA_BINS } else { 0 });
+        for &y in rows {
+            for x in (step / 2..w).step_by(step) {
+                let i = (y * w + x) * spp;
+                if nc == 1 {
+                    codes[0][s[i].into()] += 1;
+                    continue;
+                }
+                let px: [usize; 3] = [s[i].into(), s[i + 1].into(), s[i + 2].into()];
+                for (hist, &c) in codes.iter_mut().zip(&px) {
+                    hist[c] += 1;
+                }
+                let y_lin = LUMA_WEIGHTS[0] * lut[px[0]]
+                    + LUMA_WEIGHTS[1] * lut[px[1]]
+                    + LUMA_WEIGHTS[2] * lut[px[2]];
+                let bin = luma_bin(y_lin);
+                luma.count[bin] += 1;
+                luma.clipped[bin] += u32::from(px.iter().any(|&c| c >= T::CLIP));
+            }
+        }
+        let mut out: Vec<Histogram> = codes
+            .into_iter()
+            .map(|count| {
+                // Clipping of a code histogram follows from the code itself.
+                let clipped = (0..T::BINS)
+                    .map(|b| if b >= T::CLIP { count[b] } else { 0 })
+                    .collect();
+                Histogram { count, clipped }
+            })
+            .collect();
+        if nc == 3 {
+            out.push(luma);
+        }
+        out
+    };
+    grid_rows
+        .par_chunks(per_part)
+        .map(build)
+        .reduce_with(|mut a, b| {
+            for (x, y) in a.iter_mut().zip(&b) {
+                x.merge(y);
+            }
+            a
+        })
+        .unwrap_or_else(|| build(&[]))
+}
+
 pub(crate) fn choose(photo: &Photo) -> ChannelChoice {
     let step = grid_step(photo.width(), photo.height());
+    let (hist, lut) = match photo.samples() {
+        Samples::U8(s) => (histograms(photo, s, step), lut8() as &[f32]),
+        Samples::U16(s) => (histograms(photo, s, step), lut16()),
+    };
     if photo.channels() == 1 {
-        let mut h = Histogram::new();
-        match photo.samples() {
-            Samples::U8(s) => grid(photo, step, |i| {
-                h.add(lut8()[usize::from(s[i])], s[i] >= CLIP_CODE_8);
-            }),
-            Samples::U16(s) => grid(photo, step, |i| {
-                h.add(lut16()[usize::from(s[i])], s[i] >= CLIP_CODE_16);
-            }),
-        }
         return ChannelChoice {
             channel: Channel::Luma,
             reason: "grey photo: its one channel is used as luma".into(),
-            stats: vec![h.stats(Channel::Luma)],
+            stats: vec![hist[0].stats(Channel::Luma, lut)],
         };
-    }
-    let mut hist: [Histogram; 4] = std::array::from_fn(|_| Histogram::new());
-    let mut add = |lin: [f32; 3], clip: [bool; 3]| {
-        for c in 0..3 {
-            hist[c].add(lin[c], clip[c]);
-        }
-        let y = LUMA_WEIGHTS[0] * lin[0] + LUMA_WEIGHTS[1] * lin[1] + LUMA_WEIGHTS[2] * lin[2];
-        hist[3].add(y, clip.iter().any(|&c| c));
-    };
-    match photo.samples() {
-        Samples::U8(s) => grid(photo, step, |i| {
-            let px = [s[i], s[i + 1], s[i + 2]];
-            add(
-                px.map(|v| lut8()[usize::from(v)]),
-                px.map(|v| v >= CLIP_CODE_8),
-            );
-        }),
-        Samples::U16(s) => grid(photo, step, |i| {
-            let px = [s[i], s[i + 1], s[i + 2]];
-            add(
-                px.map(|v| lut16()[usize::from(v)]),
-                px.map(|v| v >= CLIP_CODE_16),
-            );
-        }),
     }
     let stats: Vec<ChannelStats> = [Channel::R, Channel::G, Channel::B, Channel::Luma]
         .iter()
         .zip(&hist)
-        .map(|(&c, h)| h.stats(c))
+        .map(|(&c, h)| {
+            let values = if c == Channel::Luma {
+                luma_bin_values()
+            } else {
+                lut
+            };
+            h.stats(c, values)
+        })
         .collect();
     let (channel, reason) = decide(&stats);
     ChannelChoice {
         channel,
         reason,
         stats,
-    }
-}
-
-/// Calls `f` with the sample index of every pixel on the grid, centred in each cell.
-fn grid(photo: &Photo, step: usize, mut f: impl FnMut(usize)) {
-    let (w, spp) = (photo.width(), photo.spp());
-    for y in (step / 2..photo.height()).step_by(step) {
-        for x in (step / 2..w).step_by(step) {
-            f((y * w + x) * spp);
-        }
     }
 }
 
@@ -286,7 +371,7 @@ fn decide(stats: &[ChannelStats]) -> (Channel, String) {
                 .then(b.signal.total_cmp(&a.signal))
         })
         .unwrap_or(&colours[0]);
-    // Sampling noise in the clipped fractions is far below this tolerance.
+    // The tolerance only absorbs rounding: channels that clip together keep luma.
     if luma.clipped_fraction <= best.clipped_fraction + 1e-9 {
         let reason = if luma.clipped_fraction == 0.0 {
             "luma is not clipped, and JPEG keeps luma at full resolution".to_string()

@@ -19,33 +19,99 @@ pub(crate) fn preview_rgb8(photo: &Photo, max_side: u32) -> (image::RgbImage, f6
     let scale = max_side as f64 / long as f64;
     let pw = ((w as f64 * scale).round() as usize).clamp(1, max_side);
     let ph = ((h as f64 * scale).round() as usize).clamp(1, max_side);
-    let cols = spans(w, pw);
-    let rows = spans(h, ph);
-    let (spp, colour) = (photo.spp(), photo.channels() == 3);
-    let mut out = vec![0u8; pw * ph * 3];
-    out.par_chunks_mut(pw * 3)
-        .enumerate()
-        .for_each(|(j, line)| {
-            let mut acc = vec![0.0f32; pw * 3];
-            for &(y, wy) in &rows[j] {
-                let start = y * w * spp;
-                let src_row = start..start + w * spp;
-                match photo.samples() {
-                    Samples::U8(s) => {
-                        add_row(&mut acc, &s[src_row], lut8(), &cols, spp, colour, wy)
-                    }
-                    Samples::U16(s) => {
-                        add_row(&mut acc, &s[src_row], lut16(), &cols, spp, colour, wy)
-                    }
-                }
-            }
-            for (o, &v) in line.iter_mut().zip(&acc) {
-                *o = encode(v);
-            }
-        });
+    let out = if photo.channels() == 3 {
+        reduce::<3>(photo, pw, ph)
+    } else {
+        reduce::<1>(photo, pw, ph)
+    };
     let image = image::RgbImage::from_raw(pw as u32, ph as u32, out)
         .unwrap_or_else(|| image::RgbImage::new(pw as u32, ph as u32));
     (image, scale)
+}
+
+/// Output rows per parallel band.
+const BAND: usize = 16;
+
+/// The area average to `pw × ph`, as interleaved sRGB 8-bit RGB; `NC` colour channels.
+fn reduce<const NC: usize>(photo: &Photo, pw: usize, ph: usize) -> Vec<u8> {
+    let w = photo.width();
+    let cols = spans(w, pw);
+    let rows = spans(photo.height(), ph);
+    let encoder = Encoder::get();
+    let mut out = vec![0u8; pw * ph * 3];
+    // Bands of output rows in parallel; inside a band each source row is converted to
+    // linear light once, filtered across, and added to the one or two output rows it
+    // overlaps.
+    out.par_chunks_mut(BAND * pw * 3)
+        .enumerate()
+        .for_each(|(band, chunk)| {
+            let j0 = band * BAND;
+            let band_rows = &rows[j0..j0 + chunk.len() / (pw * 3)];
+            let mut acc = vec![[0.0f32; NC]; band_rows.len() * pw];
+            let mut lin = vec![[0.0f32; NC]; w];
+            let mut across = vec![[0.0f32; NC]; pw];
+            let y_first = band_rows.first().and_then(|r| r.first()).map_or(0, |s| s.0);
+            let y_last = band_rows.last().and_then(|r| r.last()).map_or(0, |s| s.0);
+            for y in y_first..=y_last {
+                linear_row(photo, y, &mut lin);
+                filter_across(&lin, &cols, &mut across);
+                for (r, span) in band_rows.iter().enumerate() {
+                    if let Some(&(_, wy)) = span.iter().find(|s| s.0 == y) {
+                        for (a, v) in acc[r * pw..(r + 1) * pw].iter_mut().zip(&across) {
+                            for c in 0..NC {
+                                a[c] += wy * v[c];
+                            }
+                        }
+                    }
+                }
+            }
+            for (px, v) in chunk.chunks_exact_mut(3).zip(&acc) {
+                for (c, o) in px.iter_mut().enumerate() {
+                    *o = encoder.encode(v[if NC == 3 { c } else { 0 }]);
+                }
+            }
+        });
+    out
+}
+
+/// Row `y` in linear light (alpha skipped).
+fn linear_row<const NC: usize>(photo: &Photo, y: usize, lin: &mut [[f32; NC]]) {
+    let (w, spp) = (photo.width(), photo.spp());
+    let range = y * w * spp..(y + 1) * w * spp;
+    match photo.samples() {
+        Samples::U8(s) => to_linear(&s[range], lut8(), spp, lin),
+        Samples::U16(s) => to_linear(&s[range], lut16(), spp, lin),
+    }
+}
+
+fn to_linear<T: Copy + Into<usize>, const NC: usize>(
+    src: &[T],
+    lut: &[f32],
+    spp: usize,
+    lin: &mut [[f32; NC]],
+) {
+    for (l, px) in lin.iter_mut().zip(src.chunks_exact(spp)) {
+        for c in 0..NC {
+            l[c] = lut[px[c].into()];
+        }
+    }
+}
+
+fn filter_across<const NC: usize>(
+    lin: &[[f32; NC]],
+    cols: &[Vec<(usize, f32)>],
+    out: &mut [[f32; NC]],
+) {
+    for (cell, span) in out.iter_mut().zip(cols) {
+        let mut sum = [0.0f32; NC];
+        for &(x, wx) in span {
+            let v = lin[x];
+            for c in 0..NC {
+                sum[c] += wx * v[c];
+            }
+        }
+        *cell = sum;
+    }
 }
 
 /// For each of `n` output cells along an axis of `len` source pixels, the source pixels
@@ -67,38 +133,47 @@ fn spans(len: usize, n: usize) -> Vec<Vec<(usize, f32)>> {
         .collect()
 }
 
-fn add_row<T: Copy + Into<usize>>(
-    acc: &mut [f32],
-    row: &[T],
-    lut: &[f32],
-    cols: &[Vec<(usize, f32)>],
-    spp: usize,
-    colour: bool,
-    wy: f32,
-) {
-    for (cell, span) in acc.chunks_exact_mut(3).zip(cols) {
-        for &(x, wx) in span {
-            let weight = wx * wy;
-            let px = &row[x * spp..];
-            if colour {
-                for c in 0..3 {
-                    cell[c] += weight * lut[px[c].into()];
-                }
-            } else {
-                let v = weight * lut[px[0].into()];
-                cell.iter_mut().for_each(|a| *a += v);
-            }
-        }
-    }
+/// Linear light → nearest 8-bit sRGB code: the count of decision levels (the linear
+/// values half way between codes in the sRGB domain) at or below the value, started from
+/// a coarse table so that only a step or two of search is left.
+struct Encoder {
+    levels: [f32; 255],
+    start: Vec<u8>,
 }
 
-/// Linear light → nearest 8-bit sRGB code, by binary search on the decision levels
-/// (the linear values half way between codes in the sRGB domain).
-fn encode(v: f32) -> u8 {
-    static LEVELS: OnceLock<[f32; 255]> = OnceLock::new();
-    let levels = LEVELS
-        .get_or_init(|| std::array::from_fn(|k| srgb_to_linear((k as f64 + 0.5) / 255.0) as f32));
-    levels.partition_point(|&t| t <= v) as u8
+/// Cells of the coarse table over linear 0..1; near black one cell spans under one code.
+const ENCODER_CELLS: usize = 4096;
+
+impl Encoder {
+    fn get() -> &'static Encoder {
+        static ENCODER: OnceLock<Encoder> = OnceLock::new();
+        ENCODER.get_or_init(|| {
+            let levels: [f32; 255] =
+                std::array::from_fn(|k| srgb_to_linear((k as f64 + 0.5) / 255.0) as f32);
+            let start = (0..=ENCODER_CELLS)
+                .map(|b| {
+                    let v = b as f32 / ENCODER_CELLS as f32;
+                    levels.partition_point(|&t| t <= v) as u8
+                })
+                .collect();
+            Encoder { levels, start }
+        })
+    }
+
+    #[inline]
+    fn encode(&self, v: f32) -> u8 {
+        if v.is_nan() || v <= 0.0 {
+            return 0;
+        }
+        if v >= 1.0 {
+            return 255;
+        }
+        let mut code = self.start[(v * ENCODER_CELLS as f32) as usize];
+        while code < 255 && self.levels[usize::from(code)] <= v {
+            code += 1;
+        }
+        code
+    }
 }
 
 /// The photo at full size: 8-bit codes copied, 16-bit ones rounded to 8 bits (both are
@@ -154,12 +229,21 @@ mod tests {
 
     #[test]
     fn encode_rounds_to_the_nearest_code() {
-        for code in [0u8, 1, 10, 100, 128, 254, 255] {
+        let e = Encoder::get();
+        for code in 0..=255u8 {
             let v = srgb_to_linear(f64::from(code) / 255.0) as f32;
-            assert_eq!(encode(v), code);
+            assert_eq!(e.encode(v), code);
         }
-        assert_eq!(encode(-1.0), 0);
-        assert_eq!(encode(2.0), 255);
+        // Against the formula directly, on a fine sweep of linear values.
+        for i in 0..=20000 {
+            let v = i as f64 / 20000.0;
+            let expect = (255.0 * linear_to_srgb(v)).round() as u8;
+            let got = e.encode(v as f32);
+            assert!(got.abs_diff(expect) <= 1, "v {v}: {got} vs {expect}");
+        }
+        assert_eq!(e.encode(-1.0), 0);
+        assert_eq!(e.encode(f32::NAN), 0);
+        assert_eq!(e.encode(2.0), 255);
     }
 
     #[test]
