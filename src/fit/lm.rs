@@ -162,15 +162,7 @@ pub fn minimize<P: LeastSquares + ?Sized>(
 
     for iteration in 1..=options.max_iterations {
         if cost == 0.0 {
-            return finish(
-                problem,
-                p,
-                r,
-                0.0,
-                iteration,
-                Convergence::ZeroResidual,
-                model,
-            );
+            return finish(problem, p, r, 0.0, iteration, Convergence::ZeroResidual);
         }
         if !problem.jacobian(p.as_slice(), r.as_slice(), &mut jac) || !all_finite(jac.as_slice()) {
             return Err(FitError::NonFinite { model });
@@ -188,15 +180,7 @@ pub fn minimize<P: LeastSquares + ?Sized>(
             .fold(0.0, f64::max)
             / cost.sqrt();
         if gmax <= options.gtol {
-            return finish(
-                problem,
-                p,
-                r,
-                cost,
-                iteration,
-                Convergence::SmallGradient,
-                model,
-            );
+            return finish(problem, p, r, cost, iteration, Convergence::SmallGradient);
         }
         let qr = jac.clone().qr();
         let rmat = qr.r();
@@ -245,41 +229,17 @@ pub fn minimize<P: LeastSquares + ?Sized>(
                 mu *= (1.0 / 3.0f64).max(1.0 - (2.0 * rho - 1.0).powi(3));
                 nu = 2.0;
                 if actual.abs() <= options.ftol * old_cost && predicted <= options.ftol * old_cost {
-                    return finish(
-                        problem,
-                        p,
-                        r,
-                        cost,
-                        iteration,
-                        Convergence::SmallReduction,
-                        model,
-                    );
+                    return finish(problem, p, r, cost, iteration, Convergence::SmallReduction);
                 }
                 if scaled_step <= options.xtol * (scaled_p + options.xtol) {
-                    return finish(
-                        problem,
-                        p,
-                        r,
-                        cost,
-                        iteration,
-                        Convergence::SmallStep,
-                        model,
-                    );
+                    return finish(problem, p, r, cost, iteration, Convergence::SmallStep);
                 }
                 break;
             }
             if scaled_step <= options.xtol * (scaled_p + options.xtol) {
                 // The region has shrunk to nothing without a decrease: we are at the
                 // minimum to working precision.
-                return finish(
-                    problem,
-                    p,
-                    r,
-                    cost,
-                    iteration,
-                    Convergence::SmallStep,
-                    model,
-                );
+                return finish(problem, p, r, cost, iteration, Convergence::SmallStep);
             }
             mu *= nu;
             nu *= 2.0;
@@ -332,7 +292,6 @@ fn finish<P: LeastSquares + ?Sized>(
     cost: f64,
     iterations: usize,
     reason: Convergence,
-    _model: &'static str,
 ) -> Result<LmReport, FitError> {
     let n = p.len();
     let m = r.len();

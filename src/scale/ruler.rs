@@ -151,7 +151,7 @@ fn best_band(
             .map_or(0.0, |e| e.peak_to_median);
         scores.push((off, score));
     }
-    let (best_i, &(best_off, best)) = scores
+    let (best_i, &(_, best)) = scores
         .iter()
         .enumerate()
         .max_by(|x, y| x.1.1.total_cmp(&y.1.1))
@@ -174,7 +174,6 @@ fn best_band(
     let (o_lo, o_hi) = (scores[lo].0 as f64, scores[hi].0 as f64);
     let centre = 0.5 * (o_lo + o_hi);
     let half = (0.5 * (o_hi - o_lo)).round() as usize + 2;
-    let _ = best_off;
     band_profile(raster, a, b, half, centre, 0.5)
         .ok_or_else(|| ScaleError::NotMeasured("the ruler band left the photo".into()))
 }
