@@ -7,6 +7,7 @@
 pub mod points;
 pub mod profile;
 pub mod ruler;
+mod ticks;
 
 use crate::ExitCode;
 use nalgebra::{Matrix2, Matrix3, Vector2, Vector3};

@@ -11,6 +11,7 @@ use crate::fit::lm::{self, LeastSquares, LmOptions};
 use crate::fit::spectral::PeriodEstimator;
 use crate::raster::Raster;
 use crate::scale::profile::{BandProfile, band_profile};
+use crate::scale::ticks::{self, count_ticks, locate_ticks};
 use nalgebra::{Matrix3, Vector2};
 
 /// Accuracy class of a ruler, after OIML R 35 / MID MI-008 for material measures of
@@ -127,12 +128,20 @@ pub fn measure(raster: &dyn Raster, spec: &RulerSpec) -> Result<(ScreenMap, Tick
     let profile = best_band(raster, a, b)?;
     let ticks = locate_ticks(&profile)?;
     let fit = fit_ticks(&ticks, length)?;
-    let map = build_map(&profile, &fit, spec)?;
+    let traces = ticks::trace_ticks(raster, &profile, &fit.ticks, fit.period_px);
+    if (spec.tick_mm - 1.0).abs() < 1e-9 {
+        check_millimetre_ticks(&fit, &traces)?;
+    }
+    let slants: Vec<ticks::TickSlant> = traces.iter().filter_map(|t| t.slant).collect();
+    let convergence = fit_convergence(&slants);
+    let map = build_map(raster, &profile, &fit, convergence.as_ref(), spec)?;
     Ok((map, fit))
 }
 
-/// Steps across the rough line to find the band where ticks are strongest, then widens
-/// the band over the neighbouring offsets that still show them.
+/// Steps across the rough line to find the band of the finest ticks, then widens the
+/// band over the neighbouring offsets that still show them. The finest, not the
+/// strongest: beside the short ticks only the long 5 and 10 mm marks remain, and their
+/// clean, coarse period would otherwise win.
 fn best_band(
     raster: &dyn Raster,
     a: Vector2<f64>,
@@ -141,168 +150,157 @@ fn best_band(
     let length = (b - a).norm();
     let reach = (0.05 * length).clamp(12.0, 60.0) as i32;
     let mut est = PeriodEstimator::new();
-    let mut scores = Vec::new();
+    // (offset, period in samples, score against the noise floor) of each counted band
+    let mut bands: Vec<(i32, f64, f64)> = Vec::new();
+    let mut strongest: f64 = 0.0;
     for off in (-reach..=reach).step_by(2) {
-        let score = band_profile(raster, a, b, 2, off as f64, 0.5)
-            .and_then(|p| {
-                let v = clean(&p.values);
-                est.dominant_period(&v, MIN_PERIOD_SAMPLES, v.len() as f64 / 6.0)
-            })
-            .map_or(0.0, |e| e.peak_to_median);
-        scores.push((off, score));
+        let run = band_profile(raster, a, b, 2, off as f64, 0.5)
+            .and_then(|p| count_ticks(&mut est, &p.values));
+        match run {
+            Some(r) if r.ticks.len() >= 8 => {
+                strongest = strongest.max(r.score);
+                bands.push((off, r.period, r.score));
+            }
+            _ => bands.push((off, f64::NAN, 0.0)),
+        }
     }
-    let (best_i, &(_, best)) = scores
-        .iter()
-        .enumerate()
-        .max_by(|x, y| x.1.1.total_cmp(&y.1.1))
-        .ok_or_else(|| ScaleError::NotMeasured("no ruler profile could be sampled".into()))?;
-    if best < 30.0 {
+    if strongest < DETECTED {
         return Err(ScaleError::NotMeasured(format!(
-            "no regular tick marks found along the ruler stretch (best periodic signal {best:.0}× \
-             the noise floor, need 30×); check the --ruler ends lie on the tick marks"
+            "no regular tick marks found along the ruler stretch (best periodic signal \
+             {strongest:.0}× the noise floor, need {DETECTED:.0}×); check the --ruler ends lie \
+             on the tick marks"
         )));
     }
-    let keep = |s: f64| s > 0.5 * best;
+    let finest = bands
+        .iter()
+        .filter(|s| s.2 >= DETECTED)
+        .map(|s| s.1)
+        .fold(f64::INFINITY, f64::min);
+    let same_ticks = |s: &(i32, f64, f64)| s.2 >= DETECTED && s.1 < 1.15 * finest;
+    let (best_i, best) = bands
+        .iter()
+        .enumerate()
+        .filter(|(_, s)| same_ticks(s))
+        .max_by(|x, y| x.1.2.total_cmp(&y.1.2))
+        .map(|(i, s)| (i, s.2))
+        .expect("the finest period belongs to a detected band");
+    let keep = |s: &(i32, f64, f64)| same_ticks(s) && s.2 > 0.5 * best;
     let mut lo = best_i;
-    while lo > 0 && keep(scores[lo - 1].1) {
+    while lo > 0 && keep(&bands[lo - 1]) {
         lo -= 1;
     }
     let mut hi = best_i;
-    while hi + 1 < scores.len() && keep(scores[hi + 1].1) {
+    while hi + 1 < bands.len() && keep(&bands[hi + 1]) {
         hi += 1;
     }
-    let (o_lo, o_hi) = (scores[lo].0 as f64, scores[hi].0 as f64);
+    let (o_lo, o_hi) = (bands[lo].0 as f64, bands[hi].0 as f64);
     let centre = 0.5 * (o_lo + o_hi);
     let half = (0.5 * (o_hi - o_lo)).round() as usize + 2;
     band_profile(raster, a, b, half, centre, 0.5)
         .ok_or_else(|| ScaleError::NotMeasured("the ruler band left the photo".into()))
 }
 
-/// Shortest tick period looked for, in profile samples (half-pixel steps): 3 px. Finer
-/// ticks are blurred by the lens and the JPEG and cannot be counted reliably.
-const MIN_PERIOD_SAMPLES: f64 = 6.0;
+/// Periodic signal, in multiples of the spectrum's noise floor, taken as tick marks.
+const DETECTED: f64 = 30.0;
 
-/// The tick period in samples. The strongest period of a ruler's profile may be that of
-/// its longer 5 mm or 10 mm marks, so the fine subdivisions (1/5 and 1/10 of it) are
-/// looked for too, and the finest one that stands clearly out of the noise floor wins;
-/// taking a 5 mm mark for a 1 mm tick would make every length five times too short.
-fn tick_period(est: &mut PeriodEstimator, v: &[f64]) -> Option<f64> {
-    let n = v.len() as f64;
-    let coarse = est.dominant_period(v, MIN_PERIOD_SAMPLES, n / 6.0)?;
-    let power = |amplitude: f64| (amplitude * n / 2.0).powi(2);
-    let floor = power(coarse.amplitude) / coarse.peak_to_median;
-    for div in [10.0, 5.0] {
-        let want = coarse.period / div;
-        if want < MIN_PERIOD_SAMPLES {
-            continue;
-        }
-        // Perspective stretches the spacing along the ruler, which broadens both peaks, so
-        // the subdivision may sit a few per cent off a tenth of the coarse period.
-        if let Some(fine) = est.dominant_period(v, want * 0.9, want * 1.1) {
-            let close = ((fine.period - want) / want).abs() < 0.08;
-            if close && power(fine.amplitude) > 6.0 * floor {
-                return Some(fine.period);
-            }
-        }
+/// Least length ratio of the 5 mm marks to the 1 mm ticks accepted as seeing both.
+const FIFTH_TICK_RATIO: f64 = 1.25;
+
+/// Refuses a "1 mm" scale whose ticks show no longer mark every fifth tick: then the
+/// marks counted are the 5 or 10 mm ones, the millimetres being too fine to resolve, and
+/// every length would come out five or ten times too short.
+fn check_millimetre_ticks(fit: &TickFit, traces: &[ticks::TickTrace]) -> Result<(), ScaleError> {
+    let lengths: Vec<f64> = traces
+        .iter()
+        .map(|t| (t.extent.1 - t.extent.0 + 1).max(0) as f64)
+        .collect();
+    match ticks::fifth_tick_contrast(&fit.ticks, &lengths) {
+        Some(ratio) if ratio >= FIFTH_TICK_RATIO => Ok(()),
+        Some(ratio) => Err(ScaleError::NotMeasured(format!(
+            "the marks found along the ruler every {:.1} px show no longer mark every fifth \
+             one (length ratio {ratio:.2}, a millimetre scale has about 1.5): they are likely \
+             the 5 or 10 mm marks with the millimetres too fine to resolve. Photograph the \
+             ruler closer, give --tick 5mm or 10mm if that is what they are, or use --points",
+            fit.period_px
+        ))),
+        None => Err(ScaleError::NotMeasured(
+            "too few ruler ticks to tell millimetre ticks from 5 mm marks; give a longer \
+             stretch"
+                .into(),
+        )),
     }
-    Some(coarse.period)
 }
 
-/// Replaces NaN samples by the mean so the FFT sees no holes.
-fn clean(v: &[f64]) -> Vec<f64> {
-    let finite: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
-    let mean = finite.iter().sum::<f64>() / finite.len().max(1) as f64;
-    v.iter()
-        .map(|x| if x.is_finite() { *x } else { mean })
-        .collect()
+/// Where the ticks meet in the photo, as their slant s = α + β·t against position t
+/// along the band: the vanishing point of the across direction, in band coordinates
+/// (t, o), is (α, 1, −β) homogeneously. β = 0 when the camera is square about the ruler's
+/// line, α ≠ 0 when the band crosses the ticks obliquely.
+#[derive(Debug, Clone, Copy)]
+pub struct Convergence {
+    /// Slant at t = 0, px along per px across.
+    pub alpha: f64,
+    /// Change of slant along the band, per px.
+    pub beta: f64,
+    /// Standard uncertainty of β.
+    pub u_beta: f64,
+    /// Ticks used.
+    pub ticks: usize,
 }
 
-/// Finds every dark tick along the profile: period by FFT, then each tick's
-/// darkness-weighted centroid, re-centred twice so the window is symmetric about it.
-fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64)>, ScaleError> {
-    let v = clean(&profile.values);
-    let step = profile.step_px;
-    let mut est = PeriodEstimator::new();
-    let period = tick_period(&mut est, &v)
-        .ok_or_else(|| ScaleError::NotMeasured("no tick period along the ruler".into()))?; // samples
-    let n = v.len();
-    let sample = |x: f64| -> f64 {
-        let x = x.clamp(0.0, (n - 1) as f64);
-        let i = (x.floor() as usize).min(n - 2);
-        let f = x - i as f64;
-        v[i] * (1.0 - f) + v[i + 1] * f
-    };
-    let centroid = |c: f64| -> Option<f64> {
-        let half = 0.5 * period;
-        let (lo, hi) = (c - half, c + half);
-        if lo < 0.0 || hi > (n - 1) as f64 {
+/// Weighted straight line through the tick slants, with ticks beyond 4 robust σ left
+/// out (a digit or a scratch across a tick) and the covariance scaled up by the Birge
+/// ratio when the slants scatter more than their own uncertainties say.
+fn fit_convergence(slants: &[ticks::TickSlant]) -> Option<Convergence> {
+    let mut kept: Vec<ticks::TickSlant> = slants.to_vec();
+    for _ in 0..3 {
+        if kept.len() < 6 {
             return None;
         }
-        // Light level: the brighter half of the window is paper between ticks.
-        let mut w: Vec<f64> = (lo.ceil() as usize..=hi.floor() as usize)
-            .map(|i| v[i])
+        let w: Vec<f64> = kept.iter().map(|s| 1.0 / (s.u * s.u)).collect();
+        let sw: f64 = w.iter().sum();
+        let tm = kept.iter().zip(&w).map(|(s, w)| w * s.t).sum::<f64>() / sw;
+        let sm = kept.iter().zip(&w).map(|(s, w)| w * s.slope).sum::<f64>() / sw;
+        let stt: f64 = kept
+            .iter()
+            .zip(&w)
+            .map(|(s, w)| w * (s.t - tm).powi(2))
+            .sum();
+        let sts: f64 = kept
+            .iter()
+            .zip(&w)
+            .map(|(s, w)| w * (s.t - tm) * (s.slope - sm))
+            .sum();
+        if !(stt > 0.0) {
+            return None;
+        }
+        let beta = sts / stt;
+        let alpha = sm - beta * tm;
+        let norm: Vec<f64> = kept
+            .iter()
+            .map(|s| (s.slope - alpha - beta * s.t) / s.u)
             .collect();
-        w.sort_by(f64::total_cmp);
-        let light = w[(w.len() * 3) / 4];
-        let core = 0.35 * period;
-        let (mut sw, mut swx) = (0.0, 0.0);
-        let mut x = c - core;
-        let dx = 0.25;
-        while x <= c + core {
-            let d = (light - sample(x)).max(0.0);
-            sw += d;
-            swx += d * x;
-            x += dx;
+        let mut abs: Vec<f64> = norm.iter().map(|r| r.abs()).collect();
+        abs.sort_by(f64::total_cmp);
+        let robust = (1.4826 * abs[abs.len() / 2]).max(1.0);
+        let before = kept.len();
+        let mut i = 0;
+        kept.retain(|_| {
+            let keep = norm[i].abs() <= 4.0 * robust;
+            i += 1;
+            keep
+        });
+        if kept.len() == before {
+            let chi2: f64 = norm.iter().map(|r| r * r).sum();
+            let birge = (chi2 / (kept.len() - 2) as f64).max(1.0);
+            return Some(Convergence {
+                alpha,
+                beta,
+                u_beta: (birge / stt).sqrt(),
+                ticks: kept.len(),
+            });
         }
-        (sw > 0.0).then(|| swx / sw)
-    };
-    // Seed at the darkest sample of the first period, then walk by one period.
-    let first_end = (period.ceil() as usize).min(n - 1);
-    let seed = (0..=first_end)
-        .min_by(|&i, &j| v[i].total_cmp(&v[j]))
-        .unwrap_or(0) as f64;
-    let mut ticks = Vec::new();
-    let mut k: i64 = 0;
-    let mut guess = seed;
-    let mut last_found: Option<(i64, f64)> = None;
-    let max_ticks = (2.0 * n as f64 / period) as i64 + 2;
-    while guess < (n - 1) as f64 + 0.5 * period && k < max_ticks {
-        let mut c = guess;
-        let mut ok = true;
-        for _ in 0..3 {
-            match centroid(c) {
-                Some(nc) if (nc - guess).abs() < 0.4 * period => c = nc,
-                _ => {
-                    ok = false;
-                    break;
-                }
-            }
-        }
-        if ok {
-            ticks.push((k, c * step));
-            last_found = Some((k, c));
-        }
-        k += 1;
-        // Follow the local period from the last two ticks found; perspective changes it.
-        guess = match (last_found, ticks.len() >= 2) {
-            (Some((kl, cl)), true) => {
-                let (k0, t0) = ticks[ticks.len() - 2];
-                // Perspective changes the period slowly; a jump means a misplaced tick.
-                let local =
-                    ((cl - t0 / step) / (kl - k0) as f64).clamp(0.8 * period, 1.25 * period);
-                cl + local * (k - kl) as f64
-            }
-            (Some((kl, cl)), false) => cl + period * (k - kl) as f64,
-            _ => seed + period * k as f64,
-        };
     }
-    if ticks.len() < 8 {
-        return Err(ScaleError::NotMeasured(format!(
-            "only {} tick marks located along the ruler; need at least 8 (give a longer stretch)",
-            ticks.len()
-        )));
-    }
-    Ok(ticks)
+    None
 }
 
 struct Projective1d<'a> {
@@ -413,13 +411,17 @@ fn fit_ticks(ticks: &[(i64, f64)], length_px: f64) -> Result<TickFit, ScaleError
     ))
 }
 
-/// The px → mm homography of the ruler: along the ruler, tick index from the inverse of
-/// t(k), so X = tick·(t − a)/(b − c·t); across it the same local scale as along at the
-/// middle, sharing the denominator (the form a camera rotated about the axis across
-/// the ruler produces).
+/// The px → mm homography of the ruler, composed in band coordinates (t along, o
+/// across). First each point slides along the tick line through it to the band's centre
+/// line, t' = (t − α·o)/(1 + β·o), so every point on one tick maps to that tick's
+/// millimetre mark wherever it lies across the ruler; then along the line the tick index
+/// is the inverse of t(k), X = tick·(t' − a)/(b − c·t'); across it the local scale at the
+/// middle of the stretch, sharing the denominator.
 fn build_map(
+    raster: &dyn Raster,
     profile: &BandProfile,
     fit: &TickFit,
+    convergence: Option<&Convergence>,
     spec: &RulerSpec,
 ) -> Result<ScreenMap, ScaleError> {
     let [a, b, c] = fit.params;
@@ -430,15 +432,44 @@ fn build_map(
     let kappa = (b - c * a) / (b - c * t_ref);
     let tick = spec.tick_mm;
     let ruler = Matrix3::new(tick, 0.0, -tick * a, 0.0, tick * kappa, 0.0, -c, 0.0, b);
+    let (alpha, beta) = convergence.map_or((0.0, 0.0), |v| (v.alpha, v.beta));
+    let slide = Matrix3::new(1.0, -alpha, 0.0, 0.0, 1.0, 0.0, 0.0, beta, 1.0);
     let to_line = Matrix3::new(u.x, u.y, -u.dot(&o), n.x, n.y, -n.dot(&o), 0.0, 0.0, 1.0);
     let reference = o + u * t_ref;
-    let mut map = ScreenMap::from_homography(ScaleMethod::Ruler, ruler * to_line, reference)?;
+    let mut map =
+        ScreenMap::from_homography(ScaleMethod::Ruler, ruler * slide * to_line, reference)?;
     map.residual_px = Some(fit.rms_px);
     map.stretch_px = Some((
         profile.origin,
         profile.position((profile.values.len() - 1) as f64),
     ));
     map = map.with_component("ruler tick fit", fit.u_rel);
+    // The scale at offset o across the ruler is 1/(1 + β·o) of that on it; over the
+    // farthest corner of the photo, u(β)·|o| bounds what the convergence adds.
+    let (w, h) = (raster.width() as f64, raster.height() as f64);
+    let reach = [(0.0, 0.0), (w, 0.0), (0.0, h), (w, h)]
+        .iter()
+        .map(|&(x, y)| n.dot(&(Vector2::new(x, y) - o)).abs())
+        .fold(0.0, f64::max);
+    match convergence {
+        Some(v) => {
+            map = map.with_component("ruler tick convergence", v.u_beta * reach);
+            let change = v.beta * reach;
+            if change.abs() > DRIFT_WARNING {
+                map.warnings.push(format!(
+                    "the ruler's ticks converge: the scale changes by {:.1} % from the ruler \
+                     to the far edge of the photo, the camera being tilted about the ruler's \
+                     line. This is corrected from the ticks' slant",
+                    100.0 * change.abs()
+                ));
+            }
+        }
+        None => map.assumptions.push(
+            "the ruler's ticks are too short to measure their slant: the camera is taken as \
+             square about the ruler's line"
+                .into(),
+        ),
+    }
     let (kf, _) = fit.ticks[0];
     let (kl, _) = fit.ticks[fit.ticks.len() - 1];
     let stretch_mm = (kl - kf) as f64 * tick;
@@ -458,8 +489,8 @@ fn build_map(
     if fit.drift.abs() > DRIFT_WARNING {
         map.warnings.push(format!(
             "the tick spacing changes by {:.1} % along the ruler: the camera is not square to \
-             the screen. The perspective along the ruler is corrected, but only along it: keep \
-             the ruler close to and parallel with the pattern",
+             the screen. The perspective is corrected from the ruler; keep the ruler close to \
+             and parallel with the pattern",
             100.0 * fit.drift
         ));
     }
@@ -471,19 +502,30 @@ mod tests {
     use super::*;
     use crate::raster::OwnedRaster;
 
-    /// A synthetic ruler: light strip with dark Gaussian ticks every `period` px starting
-    /// at x0 along the row y ∈ [40, 70], seen with a 1-D perspective x = (x0 + p k)/(1 + c k).
-    fn ruler_image(period: f64, c: f64) -> OwnedRaster {
+    /// A synthetic ruler: a light strip y ∈ [30, 80] with dark Gaussian ticks every
+    /// `period` px from x0, hanging from its top edge and 14, 21 or 28 px long (every
+    /// tick, 5th, 10th), seen with a 1-D perspective x = (x0 + p k)/(1 + c k). With
+    /// `every` = 5 only the 5 mm and 10 mm marks are drawn, as when the millimetres blur.
+    fn ruler_image(period: f64, c: f64, every: i64) -> OwnedRaster {
         let x0 = 23.3;
         OwnedRaster::from_fn(900, 120, move |x, y| {
-            if !(40.0..=70.0).contains(&y) {
+            if !(30.0..=80.0).contains(&y) {
                 return 0.2;
             }
             // Nearest tick index in the perspective model, then a dark line of σ 0.8 px.
             let k = ((x - x0) / (period - c * x)).round();
             let mut dark = 0.0;
-            for dk in -1..=1 {
+            for dk in -every..=every {
                 let kk = k + dk as f64;
+                let ki = kk as i64;
+                let len = match (ki.rem_euclid(10), ki.rem_euclid(5)) {
+                    (0, _) => 28.0,
+                    (_, 0) => 21.0,
+                    _ => 14.0,
+                };
+                if ki.rem_euclid(every) != 0 || y > 30.0 + len {
+                    continue;
+                }
                 let t = (x0 + period * kk) / (1.0 + c * kk);
                 dark += (-(x - t).powi(2) / (2.0 * 0.8 * 0.8)).exp();
             }
@@ -503,7 +545,7 @@ mod tests {
 
     #[test]
     fn square_on_ruler_gives_the_tick_period() {
-        let img = ruler_image(12.5, 0.0);
+        let img = ruler_image(12.5, 0.0, 1);
         let (map, fit) = measure(&img, &spec(1.0)).unwrap();
         // The rough line runs at a slight slant (2 px over 870): the along-line period is
         // 12.5 px · (870/√(870²+2²)) projected; the slant is tiny so 12.5 px within 1e-4.
@@ -521,7 +563,7 @@ mod tests {
     #[test]
     fn perspective_ruler_is_fitted_and_warned_about() {
         // c = 2e-4 per tick over ~60 ticks changes the period by ~2.5 %.
-        let img = ruler_image(12.5, 2e-4);
+        let img = ruler_image(12.5, 2e-4, 1);
         let (map, fit) = measure(&img, &spec(1.0)).unwrap();
         assert!(fit.drift.abs() > DRIFT_WARNING, "{}", fit.drift);
         assert_eq!(map.warnings.len(), 1);
@@ -533,6 +575,81 @@ mod tests {
             let mm = (p2 - p1).norm();
             assert!((mm - (k2 - k1)).abs() < 0.01, "{k1}..{k2}: {mm} mm");
         }
+    }
+
+    #[test]
+    fn strong_perspective_is_counted_tick_by_tick() {
+        // c = 2.5e-3 per tick: the spacing falls from 12.5 to about 10 px along the ruler
+        // (a camera well off square); a walk by the mean period would slip here.
+        let img = ruler_image(12.5, 2.5e-3, 1);
+        let (map, fit) = measure(&img, &spec(1.0)).unwrap();
+        assert!(fit.drift < -0.15, "{}", fit.drift);
+        let t = |k: f64| (23.3 + 12.5 * k) / (1.0 + 2.5e-3 * k);
+        for (k1, k2) in [(3.0, 13.0), (20.0, 60.0)] {
+            let p1 = map.to_mm(Vector2::new(t(k1), 40.0));
+            let p2 = map.to_mm(Vector2::new(t(k2), 40.0));
+            let mm = (p2 - p1).norm();
+            assert!((mm - (k2 - k1)).abs() < 0.01, "{k1}..{k2}: {mm} mm");
+        }
+    }
+
+    /// A millimetre ruler on a screen seen by a camera tilted about the ruler's own line:
+    /// x = (10·X + 450)/(1 + g·Y), y = (10·Y + 250)/(1 + g·Y), g = 0.003 per mm, so
+    /// the scale 20 mm above the ruler is 7 % larger than on it. Ticks hang from Y = 0,
+    /// 3, 4.5 and 6 mm long, Gaussian across (σ 0.08 mm), on a strip Y ∈ [−2, 12].
+    fn tilted_ruler() -> OwnedRaster {
+        let g = 0.003;
+        OwnedRaster::from_fn(900, 400, move |x, y| {
+            let sy = (y - 250.0) / (10.0 - g * y);
+            let sx = (x * (1.0 + g * sy) - 450.0) / 10.0;
+            if !(-2.0..=12.0).contains(&sy) {
+                return 0.2;
+            }
+            let k = sx.round();
+            let len = match ((k as i64).rem_euclid(10), (k as i64).rem_euclid(5)) {
+                (0, _) => 6.0,
+                (_, 0) => 4.5,
+                _ => 3.0,
+            };
+            let dark = if (0.0..=len).contains(&sy) && k.abs() <= 40.0 {
+                (-(sx - k).powi(2) / (2.0 * 0.08 * 0.08)).exp()
+            } else {
+                0.0
+            };
+            (0.85 - 0.6 * dark) as f32
+        })
+    }
+
+    #[test]
+    fn a_camera_tilted_about_the_ruler_line_is_corrected_from_the_ticks_slant() {
+        let g = 0.003;
+        let to_px = |sx: f64, sy: f64| {
+            let w = 1.0 + g * sy;
+            Vector2::new((10.0 * sx + 450.0) / w, (10.0 * sy + 250.0) / w)
+        };
+        let (a, b) = (to_px(-38.0, 1.5), to_px(38.0, 1.5));
+        let spec = RulerSpec {
+            from_px: a,
+            to_px: b,
+            ..spec(1.0)
+        };
+        let (map, _) = measure(&tilted_ruler(), &spec).unwrap();
+        // Two points 60 mm apart, 20 mm off the ruler, where the pattern would be.
+        let d = (map.to_mm(to_px(30.0, -20.0)) - map.to_mm(to_px(-30.0, -20.0))).norm();
+        assert!((d - 60.0).abs() < 0.06, "{d} mm");
+        assert!(map.warnings.iter().any(|w| w.contains("converge")));
+    }
+
+    #[test]
+    fn five_millimetre_marks_are_not_taken_for_millimetre_ticks() {
+        // Only every 5th mark drawn, 62.5 px apart: regular and sharp, but with --tick 1mm
+        // the scale would be five times off, so it must be refused.
+        let img = ruler_image(12.5, 0.0, 5);
+        let e = measure(&img, &spec(1.0)).unwrap_err();
+        assert!(e.to_string().contains("fifth"), "{e}");
+        // Given as what they are, the same marks make a good scale.
+        let (map, _) = measure(&img, &spec(5.0)).unwrap();
+        assert!((map.mm_per_px() - 1.0 / 12.5).abs() * 12.5 < 1e-3);
     }
 
     #[test]
