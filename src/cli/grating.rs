@@ -6,7 +6,7 @@ use super::inputs::{DefaultU, InputBook, parse_flag, positive_flag};
 use super::output::{self, Clock};
 use crate::find::FindError;
 use crate::find::axis::pattern_axis;
-use crate::find::blobs::{Blob, CoarseMap, block_size_for, coarse_map, find_blobs};
+use crate::find::blobs::{CoarseMap, block_size_for, coarse_map, find_blobs};
 use crate::find::spot::{self, Spot};
 use crate::optics::grating::{self, GratingInputs, GratingSolution, Known, Mode, OrderSpot};
 use crate::photo::{Channel, Photo};
@@ -20,6 +20,7 @@ use crate::{Error, ExitCode};
 use clap::Args;
 use nalgebra::Vector2;
 use rayon::prelude::*;
+use std::collections::HashMap;
 
 /// Arguments of `fringegauge grating`.
 #[derive(Debug, Clone, Args)]
@@ -315,19 +316,44 @@ pub fn locate_orders(
             .then(blobs[b].flux.total_cmp(&blobs[a].flux))
     });
     anchors.truncate(3);
+    let axes: Vec<(usize, Vec<usize>)> = anchors
+        .iter()
+        .filter_map(|&a| {
+            pattern_axis(&blobs, Some(a), 16)
+                .ok()
+                .map(|ax| (a, ax.members))
+        })
+        .collect();
+    // Every candidate on an axis is fitted once: the fitted flux 2π·A·σ₁·σ₂ judges which
+    // spot is the zero order even where the cores are clipped, and the order spots reuse
+    // the fits.
+    let mut on_axis: Vec<usize> = axes.iter().flat_map(|(_, m)| m.iter().copied()).collect();
+    on_axis.sort_unstable();
+    on_axis.dedup();
+    let fitted: HashMap<usize, Spot> = on_axis
+        .par_iter()
+        .filter_map(|&i| spot::refine(raster, &blobs[i]).ok().map(|s| (i, s)))
+        .collect();
+    let brightness = |i: usize| {
+        fitted.get(&i).map_or(blobs[i].flux, |s| {
+            2.0 * std::f64::consts::PI * s.amplitude * s.sigma_px.0 * s.sigma_px.1
+        })
+    };
     let mut best: Option<(usize, Vec<(usize, i32)>)> = None;
-    for &anchor in &anchors {
-        let Ok(axis) = pattern_axis(&blobs, Some(anchor), 16) else {
-            continue;
-        };
-        let members: Vec<&Blob> = axis.members.iter().map(|&i| &blobs[i]).collect();
-        let mm: Vec<Vector2<f64>> = members.iter().map(|b| map.to_mm(b.centroid)).collect();
+    for (_, members) in &axes {
+        let mm: Vec<Vector2<f64>> = members
+            .iter()
+            .map(|&i| map.to_mm(blobs[i].centroid))
+            .collect();
         let Ok(line) = crate::fit::line::tls_line(&mm, &vec![1.0; mm.len()]) else {
             continue;
         };
         let along: Vec<f64> = mm.iter().map(|p| line.along(*p)).collect();
-        let size: Vec<f64> = members.iter().map(|b| b.radius_px * mm_per_px).collect();
-        let flux: Vec<f64> = members.iter().map(|b| b.flux).collect();
+        let size: Vec<f64> = members
+            .iter()
+            .map(|&i| blobs[i].radius_px * mm_per_px)
+            .collect();
+        let flux: Vec<f64> = members.iter().map(|&i| brightness(i)).collect();
         let Some((orders, _ratio)) = grating::index_orders(
             &along,
             &size,
@@ -338,8 +364,7 @@ pub fn locate_orders(
         ) else {
             continue;
         };
-        let assigned: Vec<(usize, i32)> = axis
-            .members
+        let assigned: Vec<(usize, i32)> = members
             .iter()
             .zip(&orders)
             .filter_map(|(&i, o)| o.map(|m| (i, m)))
@@ -361,8 +386,8 @@ pub fn locate_orders(
     };
     let mut warnings = Vec::new();
     let mut spots: Vec<(i32, Spot)> = assigned
-        .par_iter()
-        .filter_map(|&(i, m)| spot::refine(raster, &blobs[i]).ok().map(|s| (m, s)))
+        .iter()
+        .filter_map(|&(i, m)| fitted.get(&i).map(|s| (m, s.clone())))
         .collect();
     if spots.len() < assigned.len() {
         warnings.push(format!(

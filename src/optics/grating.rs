@@ -231,7 +231,7 @@ pub fn index_orders(
                         incidence_rad,
                         distance_mm,
                     );
-                    let zero_ok = plausible_zero(&orders, brightness);
+                    let zero_ok = plausible_zero(&orders, brightness, mode);
                     let better = match &best {
                         None => true,
                         Some((bc, bz, br, bs, _)) => {
@@ -256,11 +256,13 @@ pub fn index_orders(
 }
 
 /// Whether an assignment's zero order is plausible: the spot called order 0 outshines
-/// every other assigned spot by a fifth (undiffracted light dominates), or no spot is
-/// called order 0 and orders lie on both sides of it (a zero order hidden in the hole of
-/// a reflection set-up, or behind a stop). Calling one of two equal first orders "0"
-/// would halve the pitch.
-fn plausible_zero(orders: &[Option<i32>], brightness: &[f64]) -> bool {
+/// every other assigned spot by a fifth (undiffracted light dominates). In reflection no
+/// spot may be called order 0 if orders lie on both sides of it: the zero order goes back
+/// through the hole in the screen. In transmission the undiffracted beam always reaches
+/// the screen, so an assignment that leaves it out while spanning it is not plausible.
+/// Calling one of two equal first orders "0" would halve the pitch; skipping the zero
+/// between them would double it.
+fn plausible_zero(orders: &[Option<i32>], brightness: &[f64], mode: Mode) -> bool {
     let zero = orders.iter().position(|o| *o == Some(0));
     match zero {
         Some(z) => orders
@@ -269,7 +271,8 @@ fn plausible_zero(orders: &[Option<i32>], brightness: &[f64]) -> bool {
             .filter(|(i, o)| o.is_some() && *i != z)
             .all(|(i, _)| brightness[z] >= 1.2 * brightness[i]),
         None => {
-            orders.iter().any(|o| o.is_some_and(|m| m < 0))
+            mode == Mode::Reflection
+                && orders.iter().any(|o| o.is_some_and(|m| m < 0))
                 && orders.iter().any(|o| o.is_some_and(|m| m > 0))
         }
     }
