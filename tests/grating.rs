@@ -211,8 +211,12 @@ fn pitch_recovered_with_a_graph_paper_scale_at_two_metres() {
 
 /// The rest of the matrix the grating issue asks for. Known failures, kept runnable with
 /// `cargo test --release -- --ignored`: under camera tilt the tick walk loses lock on
-/// the ruler's 1 mm marks (cases 1, 2, 4, 5), and at 1000 lines/mm the order indexing
-/// picks a wrong hypothesis (cases 3, 6).
+/// the ruler's 1 mm marks (cases 1, 2, 4, 5). At 1000 lines/mm (cases 3, 6) the two
+/// graph-paper points give a similarity scale, blind to the ±15° yaw: the first orders,
+/// about 430 mm either side, come out 1.44:1 uneven, no assignment with −1, 0, +1 fits
+/// one λ/d, and an uneven one (−3, −2, 0) does; even indexed right, the fit would be
+/// biased by about 2 %. Passing needs the view's perspective along the line as a fit
+/// parameter, fixed by the symmetry of ±m.
 #[test]
 #[ignore = "known failures of the ruler tick walk under tilt and of 1000/mm indexing"]
 fn pitch_recovered_over_lasers_pitches_distances_and_tilts() {
@@ -248,7 +252,7 @@ fn clean_spots_land_within_a_tenth_of_a_pixel_of_truth() {
 }
 
 #[test]
-#[ignore = "known failure, not yet diagnosed: pitch about 3x off on this cluttered photo"]
+#[ignore = "known failure: clutter blobs (table edge, window) are taken as orders; 9° yaw uneven"]
 fn practitioner_photo_with_graph_paper_clutter_and_glints() {
     // Small saturated haloed spots on graph paper seen obliquely, a table with objects in
     // the lower part, a glint off the line and a window reflection in a corner; the
@@ -292,8 +296,23 @@ fn he_ne_wavelength_from_a_known_grating() {
 }
 
 fn disc(b: &Bench, name: &str, pitch_m: f64, wavelength_m: f64, distance_m: f64) -> (Truth, Run) {
+    disc_framed(b, name, pitch_m, wavelength_m, distance_m, None)
+}
+
+/// A disc photo; `framing` replaces the automatic one where that cannot hold the orders.
+fn disc_framed(
+    b: &Bench,
+    name: &str,
+    pitch_m: f64,
+    wavelength_m: f64,
+    distance_m: f64,
+    framing: Option<Framing>,
+) -> (Truth, Run) {
     let mut case = Case::new(wavelength_m, pitch_m, distance_m).sharp();
     case.setup.reflect = true;
+    if let Some(f) = framing {
+        case.camera.framing = f;
+    }
     let t = case.render(b, name);
     let ruler = ruler_flag(&t);
     let wl = format!("{}nm±0.5nm", wavelength_m * 1e9);
@@ -322,14 +341,36 @@ fn cd_track_pitch_from_a_reflection_photo() {
     assert_within_expanded(&run, "pitch", 1.6e-6);
 }
 
+/// The automatic framing keeps orders within 1.5 distances of the zero order, but a DVD's
+/// first orders land tan 61.45° = 1.84 distances out on a screen parallel to the disc,
+/// and its zero order goes back into the hole: that photo holds no spot at all. A person
+/// photographing the pattern frames both first orders, so the camera is aimed at the hole
+/// from far enough back that they sit a fifth inside the frame's edges.
 #[test]
-#[ignore = "known failure, not yet diagnosed: no spot found in the DVD photo"]
 fn dvd_track_pitch_from_a_reflection_photo() {
     let b = Bench::new();
     // DVD track pitch 0.74 µm (ECMA-267 §10.6.2); first order near 61° at 650 nm.
-    let (_, run) = disc(&b, "dvd.jpg", 0.74e-6, 650e-9, 0.08);
+    let (pitch, wavelength, distance): (f64, f64, f64) = (0.74e-6, 650e-9, 0.08);
+    // Where the first order lands on a screen parallel to the disc, L·tan θ1 with
+    // sin θ1 = λ/d (REFERENCES: 61.45° computed for a DVD at 650 nm).
+    let reach_mm = distance * 1e3 * (wavelength / pitch).asin().tan();
+    assert!((reach_mm / (distance * 1e3) - 61.45f64.to_radians().tan()).abs() < 0.01);
+    let camera = Case::new(wavelength, pitch, distance).sharp().camera;
+    let half_width_px = 0.5 * camera.width_px as f64;
+    let framing = Framing::Fixed {
+        aim_mm: [0.0, 0.0],
+        distance_mm: 1.25 * reach_mm * camera.focal_px / half_width_px,
+    };
+    let (t, run) = disc_framed(&b, "dvd.jpg", pitch, wavelength, distance, Some(framing));
+    assert!(
+        t.orders
+            .iter()
+            .filter(|o| o.order.abs() == 1)
+            .all(|o| o.in_frame),
+        "both first orders in the frame"
+    );
     assert_eq!(run.code, 0, "{}", run.stderr);
-    assert_within_expanded(&run, "pitch", 0.74e-6);
+    assert_within_expanded(&run, "pitch", pitch);
 }
 
 #[test]
