@@ -209,18 +209,23 @@ fn pitch_recovered_with_a_graph_paper_scale_at_two_metres() {
     run_geometries(&[0]);
 }
 
-/// The rest of the matrix the grating issue asks for. Known failures, kept runnable with
-/// `cargo test --release -- --ignored`: under camera tilt the tick walk loses lock on
-/// the ruler's 1 mm marks (cases 1, 2, 4, 5). At 1000 lines/mm (cases 3, 6) the two
-/// graph-paper points give a similarity scale, blind to the ±15° yaw: the first orders,
-/// about 430 mm either side, come out 1.44:1 uneven, no assignment with −1, 0, +1 fits
-/// one λ/d, and an uneven one (−3, −2, 0) does; even indexed right, the fit would be
-/// biased by about 2 %. Passing needs the view's perspective along the line as a fit
-/// parameter, fixed by the symmetry of ±m.
+/// Ruler scales under camera yaw and pitch up to 12°: the ruler's tick spacing corrects
+/// the perspective along it, the convergence of its ticks the tilt about its line.
 #[test]
-#[ignore = "known failures of the ruler tick walk under tilt and of 1000/mm indexing"]
-fn pitch_recovered_over_lasers_pitches_distances_and_tilts() {
-    run_geometries(&[1, 2, 3, 4, 5, 6]);
+fn pitch_recovered_with_a_ruler_under_camera_tilt() {
+    run_geometries(&[1, 2, 4, 5]);
+}
+
+/// Known failure, kept runnable with `cargo test --release -- --ignored`: at 1000
+/// lines/mm (cases 3, 6) the two graph-paper points give a similarity scale, blind to the
+/// ±15° yaw: the first orders, about 430 mm either side, come out 1.44:1 uneven, no
+/// assignment with −1, 0, +1 fits one λ/d, and an uneven one (−3, −2, 0) does; even
+/// indexed right, the fit would be biased by about 2 %. Passing needs a perspective
+/// scale from the graph paper itself (a grid fit), which two points cannot give.
+#[test]
+#[ignore = "known failure: two graph-paper points cannot correct a 15° yaw (needs a grid fit)"]
+fn pitch_recovered_at_1000_per_mm_with_graph_paper_under_15_degrees_yaw() {
+    run_geometries(&[3, 6]);
 }
 
 #[test]

@@ -171,12 +171,30 @@ fn best_band(
              on the tick marks"
         )));
     }
-    let finest = bands
-        .iter()
-        .filter(|s| s.2 >= DETECTED)
-        .map(|s| s.1)
+    // A band of ticks is a few px wide at least and stands out like one: a period seen
+    // on a single offset, or far weaker than the strongest, is an edge effect (the ends
+    // of the ticks count twice) and does not make a finer class.
+    let agrees = |i: usize, j: usize| {
+        let (p, q) = (bands[i].1, bands[j].1);
+        bands[j].2 >= DETECTED && ((p - q) / p).abs() < 0.03
+    };
+    let real = |i: usize| {
+        bands[i].2 >= DETECTED.max(0.01 * strongest)
+            && ((i > 0 && agrees(i, i - 1)) || (i + 1 < bands.len() && agrees(i, i + 1)))
+    };
+    let finest = (0..bands.len())
+        .filter(|&i| real(i))
+        .map(|i| bands[i].1)
         .fold(f64::INFINITY, f64::min);
-    let same_ticks = |s: &(i32, f64, f64)| s.2 >= DETECTED && s.1 < 1.15 * finest;
+    if !finest.is_finite() {
+        return Err(ScaleError::NotMeasured(
+            "the ruler's ticks are seen along only one line of pixels; give the --ruler ends \
+             on the tick marks"
+                .into(),
+        ));
+    }
+    let same_ticks =
+        |s: &(i32, f64, f64)| s.2 >= DETECTED && ((s.1 - finest) / finest).abs() < 0.15;
     let (best_i, best) = bands
         .iter()
         .enumerate()
