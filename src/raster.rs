@@ -23,6 +23,24 @@ pub trait Raster: Sync {
         }
     }
 
+    /// Fills `out` (length width) with the clipping flags of row `y`.
+    fn clipped_row_into(&self, y: usize, out: &mut [bool]) {
+        for (x, c) in out.iter_mut().enumerate() {
+            *c = self.clipped(x, y);
+        }
+    }
+
+    /// Adds row `y` into per-block sums of values and counts of clipped pixels, blocks of
+    /// `block` pixels from x = 0.
+    fn add_block_row(&self, y: usize, block: usize, sums: &mut [f32], clips: &mut [u16]) {
+        for (b, (s, c)) in sums.iter_mut().zip(clips.iter_mut()).enumerate() {
+            for x in b * block..((b + 1) * block).min(self.width()) {
+                *s += self.value(x, y);
+                *c += u16::from(self.clipped(x, y));
+            }
+        }
+    }
+
     /// Bilinear interpolation between pixel centres; None outside the image.
     fn bilinear(&self, x: f64, y: f64) -> Option<f32> {
         let (w, h) = (self.width(), self.height());
@@ -55,6 +73,12 @@ impl Raster for Plane<'_> {
     }
     fn row_into(&self, y: usize, out: &mut [f32]) {
         self.row(y, out)
+    }
+    fn clipped_row_into(&self, y: usize, out: &mut [bool]) {
+        self.saturated_row(y, out)
+    }
+    fn add_block_row(&self, y: usize, block: usize, sums: &mut [f32], clips: &mut [u16]) {
+        Plane::add_block_row(self, y, block, sums, clips)
     }
 }
 

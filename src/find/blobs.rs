@@ -55,20 +55,8 @@ pub fn coarse_map(raster: &dyn Raster, block: usize) -> CoarseMap {
         .map(|by| {
             let mut sums = vec![0f32; bw];
             let mut clips = vec![0u16; bw];
-            let mut row = vec![0f32; w];
             for y in by * block..(by + 1) * block {
-                raster.row_into(y, &mut row);
-                for (bx, s) in sums.iter_mut().enumerate() {
-                    let seg = &row[bx * block..(bx + 1) * block];
-                    *s += seg.iter().sum::<f32>();
-                }
-                for (bx, c) in clips.iter_mut().enumerate() {
-                    for x in bx * block..(bx + 1) * block {
-                        if raster.clipped(x, y) {
-                            *c += 1;
-                        }
-                    }
-                }
+                raster.add_block_row(y, block, &mut sums, &mut clips);
             }
             let area = (block * block) as f32;
             sums.iter_mut().for_each(|s| *s /= area);

@@ -19,8 +19,6 @@ pub struct BandProfile {
     pub values: Vec<f64>,
     /// Standard error of each mean from the scatter across the band.
     pub std_errors: Vec<f64>,
-    /// Fraction of clipped pixels contributing to each sample.
-    pub clipped: Vec<f32>,
 }
 
 impl BandProfile {
@@ -51,11 +49,10 @@ pub fn band_profile(
     let origin = a + across * offset_px;
     let mut values = Vec::with_capacity(n);
     let mut std_errors = Vec::with_capacity(n);
-    let mut clipped = Vec::with_capacity(n);
     let hw = half_width_px as isize;
     for i in 0..n {
         let c = origin + along * (i as f64 * step_px);
-        let (mut s, mut s2, mut count, mut nclip) = (0.0, 0.0, 0usize, 0usize);
+        let (mut s, mut s2, mut count) = (0.0, 0.0, 0usize);
         for k in -hw..=hw {
             let p = c + across * k as f64;
             if let Some(v) = raster.bilinear(p.x, p.y) {
@@ -63,10 +60,6 @@ pub fn band_profile(
                 s += v;
                 s2 += v * v;
                 count += 1;
-                let (xi, yi) = (p.x.round() as usize, p.y.round() as usize);
-                if raster.clipped(xi, yi) {
-                    nclip += 1;
-                }
             }
         }
         if count * 2 > (2 * half_width_px + 1) {
@@ -78,11 +71,9 @@ pub fn band_profile(
             };
             values.push(mean);
             std_errors.push((var / count as f64).sqrt());
-            clipped.push(nclip as f32 / count as f32);
         } else {
             values.push(f64::NAN);
             std_errors.push(f64::NAN);
-            clipped.push(0.0);
         }
     }
     Some(BandProfile {
@@ -92,7 +83,6 @@ pub fn band_profile(
         step_px,
         values,
         std_errors,
-        clipped,
     })
 }
 
