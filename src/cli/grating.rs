@@ -80,7 +80,7 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
     clock.lap("decode");
     let forced = output::forced_channel(args.photo.channel.as_deref())?;
     // Ruler marks are neutral grey: luma carries them at full resolution.
-    let map = output::screen_map(
+    let mut map = output::screen_map(
         &photo.plane(forced.unwrap_or(Channel::Luma)),
         &args.scale,
         &mut book,
@@ -104,6 +104,8 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
             px_u: s.px_u,
         })
         .collect();
+    let at: Vec<Vector2<f64>> = order_spots.iter().map(|s| s.px).collect();
+    map.localize(&at);
     let seed = 0x05ee_d0ff_1e1d;
     let mc = args.output.monte_carlo.map(|n| (n, seed));
     let solution = grating::solve(&order_spots, &map, &inputs, mc)?;

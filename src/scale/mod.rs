@@ -63,6 +63,22 @@ pub struct ScaleComponent {
     pub name: String,
     /// Relative standard uncertainty (k = 1).
     pub u_rel: f64,
+    /// For a component that grows with the distance from a line in the photo (the scale
+    /// carried off a ruler's line by the convergence of its ticks): the line and the
+    /// relative uncertainty per px away from it. `u_rel` then holds the value over the
+    /// whole frame until [`ScreenMap::localize`] narrows it to the measured features.
+    pub across: Option<AcrossLine>,
+}
+
+/// A line in the photo and a relative uncertainty per px of distance from it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AcrossLine {
+    /// A point on the line, px.
+    pub origin: Vector2<f64>,
+    /// Unit normal of the line.
+    pub normal: Vector2<f64>,
+    /// Relative standard uncertainty per px of distance from the line.
+    pub u_rel_per_px: f64,
 }
 
 /// A map from upright photo pixels to millimetres on the screen plane.
@@ -130,8 +146,45 @@ impl ScreenMap {
         self.components.push(ScaleComponent {
             name: name.into(),
             u_rel,
+            across: None,
         });
         self
+    }
+
+    /// Adds a component that grows with the distance from a line, valued over the whole
+    /// `width`×`height` frame until [`ScreenMap::localize`] is called.
+    pub fn with_component_across(
+        mut self,
+        name: impl Into<String>,
+        across: AcrossLine,
+        width: f64,
+        height: f64,
+    ) -> Self {
+        let corners = [
+            Vector2::new(0.0, 0.0),
+            Vector2::new(width, 0.0),
+            Vector2::new(0.0, height),
+            Vector2::new(width, height),
+        ];
+        self.components.push(ScaleComponent {
+            name: name.into(),
+            u_rel: across.u_rel_per_px * farthest(&across, &corners),
+            across: Some(across),
+        });
+        self
+    }
+
+    /// Values the components that grow away from a line at the farthest of the photo
+    /// points the measurement rests on, instead of at the farthest corner of the frame.
+    pub fn localize(&mut self, points_px: &[Vector2<f64>]) {
+        if points_px.is_empty() {
+            return;
+        }
+        for c in &mut self.components {
+            if let Some(a) = c.across {
+                c.u_rel = a.u_rel_per_px * farthest(&a, points_px);
+            }
+        }
     }
 
     /// The px → mm homography.
@@ -185,6 +238,13 @@ impl ScreenMap {
 fn project(h: &Matrix3<f64>, p: Vector2<f64>) -> Vector2<f64> {
     let q = h * Vector3::new(p.x, p.y, 1.0);
     Vector2::new(q.x / q.z, q.y / q.z)
+}
+
+fn farthest(a: &AcrossLine, points: &[Vector2<f64>]) -> f64 {
+    points
+        .iter()
+        .map(|p| a.normal.dot(&(p - a.origin)).abs())
+        .fold(0.0, f64::max)
 }
 
 #[cfg(test)]

@@ -6,13 +6,14 @@
 //! straight ruler seen in perspective. A varying tick spacing (c ≠ 0) means the camera
 //! was not square to the screen.
 
-use super::{ScaleError, ScaleMethod, ScreenMap};
+use super::{AcrossLine, ScaleError, ScaleMethod, ScreenMap};
 use crate::fit::lm::{self, LeastSquares, LmOptions};
 use crate::fit::spectral::PeriodEstimator;
 use crate::raster::Raster;
 use crate::scale::profile::{BandProfile, band_profile};
 use crate::scale::ticks::{self, count_ticks, locate_ticks};
 use nalgebra::{Matrix3, Vector2};
+use rayon::prelude::*;
 
 /// Accuracy class of a ruler, after OIML R 35 / MID MI-008 for material measures of
 /// length: maximum permissible error ±(a + b·L) mm with L in whole metres rounded up.
@@ -149,21 +150,20 @@ fn best_band(
 ) -> Result<BandProfile, ScaleError> {
     let length = (b - a).norm();
     let reach = (0.05 * length).clamp(12.0, 60.0) as i32;
-    let mut est = PeriodEstimator::new();
     // (offset, period in samples, score against the noise floor) of each counted band
-    let mut bands: Vec<(i32, f64, f64)> = Vec::new();
-    let mut strongest: f64 = 0.0;
-    for off in (-reach..=reach).step_by(2) {
-        let run = band_profile(raster, a, b, 2, off as f64, 0.5)
-            .and_then(|p| count_ticks(&mut est, &p.values));
-        match run {
-            Some(r) if r.ticks.len() >= 8 => {
-                strongest = strongest.max(r.score);
-                bands.push((off, r.period, r.score));
+    let offsets: Vec<i32> = (-reach..=reach).step_by(2).collect();
+    let bands: Vec<(i32, f64, f64)> = offsets
+        .par_iter()
+        .map_init(PeriodEstimator::new, |est, &off| {
+            let run = band_profile(raster, a, b, 2, off as f64, 0.5)
+                .and_then(|p| count_ticks(est, &p.values));
+            match run {
+                Some(r) if r.ticks.len() >= 8 => (off, r.period, r.score),
+                _ => (off, f64::NAN, 0.0),
             }
-            _ => bands.push((off, f64::NAN, 0.0)),
-        }
-    }
+        })
+        .collect();
+    let strongest = bands.iter().map(|s| s.2).fold(0.0, f64::max);
     if strongest < DETECTED {
         return Err(ScaleError::NotMeasured(format!(
             "no regular tick marks found along the ruler stretch (best periodic signal \
@@ -462,8 +462,8 @@ fn build_map(
         profile.position((profile.values.len() - 1) as f64),
     ));
     map = map.with_component("ruler tick fit", fit.u_rel);
-    // The scale at offset o across the ruler is 1/(1 + β·o) of that on it; over the
-    // farthest corner of the photo, u(β)·|o| bounds what the convergence adds.
+    // The scale at offset o across the ruler is 1/(1 + β·o) of that on it, so the
+    // convergence adds u(β)·|o| where the features lie.
     let (w, h) = (raster.width() as f64, raster.height() as f64);
     let reach = [(0.0, 0.0), (w, 0.0), (0.0, h), (w, h)]
         .iter()
@@ -471,7 +471,12 @@ fn build_map(
         .fold(0.0, f64::max);
     match convergence {
         Some(v) => {
-            map = map.with_component("ruler tick convergence", v.u_beta * reach);
+            let line = AcrossLine {
+                origin: o,
+                normal: n,
+                u_rel_per_px: v.u_beta,
+            };
+            map = map.with_component_across("ruler tick convergence", line, w, h);
             let change = v.beta * reach;
             if change.abs() > DRIFT_WARNING {
                 map.warnings.push(format!(

@@ -10,10 +10,15 @@ use super::ScaleError;
 use crate::fit::spectral::PeriodEstimator;
 use crate::raster::Raster;
 use crate::scale::profile::BandProfile;
+use rayon::prelude::*;
 
 /// Shortest tick period looked for, in profile samples (half-pixel steps): 3 px. Finer
 /// ticks are blurred by the lens and the JPEG and cannot be counted reliably.
 pub(super) const MIN_PERIOD_SAMPLES: f64 = 6.0;
+
+/// Most re-centring steps of a darkness-weighted centroid; it stops sooner once it
+/// moves by less than a thousandth of a sample.
+const MAX_CENTROID_STEPS: usize = 20;
 
 /// Fewest ticks a scale is built from.
 const MIN_TICKS: usize = 8;
@@ -128,19 +133,33 @@ pub(super) fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64)>, Sca
 }
 
 /// Local paper level: the 80th percentile of the samples within one mean period, so a
-/// dark tick never lifts or lowers its own reference.
+/// dark tick never lifts or lowers its own reference. The paper level changes slowly, so
+/// it is taken every quarter period and interpolated between.
 fn paper_level(v: &[f64], period: f64) -> Vec<f64> {
     let n = v.len();
     let half = (period.ceil() as usize).max(2);
+    let stride = ((period / 4.0) as usize).max(1);
     let mut window = Vec::with_capacity(2 * half + 1);
-    (0..n)
+    let knots: Vec<(usize, f64)> = (0..n)
+        .step_by(stride)
+        .chain(std::iter::once(n - 1))
         .map(|i| {
             window.clear();
             window.extend_from_slice(&v[i.saturating_sub(half)..(i + half + 1).min(n)]);
             let q = ((window.len() * 4) / 5).min(window.len() - 1);
-            *window.select_nth_unstable_by(q, f64::total_cmp).1
+            (i, *window.select_nth_unstable_by(q, f64::total_cmp).1)
         })
-        .collect()
+        .collect();
+    let mut out = Vec::with_capacity(n);
+    for pair in knots.windows(2) {
+        let ((i0, l0), (i1, l1)) = (pair[0], pair[1]);
+        for i in i0..i1 {
+            let f = (i - i0) as f64 / (i1 - i0) as f64;
+            out.push(l0 + f * (l1 - l0));
+        }
+    }
+    out.push(knots[knots.len() - 1].1);
+    out
 }
 
 /// Every local darkness maximum that is the darkest point within ±0.3 mean periods and
@@ -178,7 +197,7 @@ fn find_dips(v: &[f64], period: f64) -> Vec<Dip> {
         .iter()
         .filter_map(|&(i, depth)| {
             let mut c = i as f64;
-            for _ in 0..3 {
+            for _ in 0..MAX_CENTROID_STEPS {
                 let (mut sw, mut swx) = (0.0, 0.0);
                 let mut x = c - core;
                 while x <= c + core {
@@ -192,7 +211,11 @@ fn find_dips(v: &[f64], period: f64) -> Vec<Dip> {
                 if sw <= 0.0 {
                     return None;
                 }
+                let moved = (swx / sw - c).abs();
                 c = swx / sw;
+                if moved < 1e-3 {
+                    break;
+                }
             }
             (c - core >= 0.0 && c + core <= (n - 1) as f64).then_some(Dip { centre: c, depth })
         })
@@ -309,8 +332,11 @@ pub(super) fn trace_ticks(
     };
     // Centre and darkness of the tick on row `off`, starting from `c`.
     let row = |mut c: f64, off: f64| -> Option<(f64, f64)> {
+        // Iterated to convergence: a window narrower than the blurred tick pulls each
+        // centroid towards where the window started, and stopping early would carry
+        // that lag from row to row and flatten the slant.
         let mut depth = 0.0;
-        for _ in 0..3 {
+        for _ in 0..MAX_CENTROID_STEPS {
             let light = 0.5 * (value(c - 0.5 * period_px, off)? + value(c + 0.5 * period_px, off)?);
             let (mut sw, mut swx) = (0.0, 0.0);
             let mut x = c - half;
@@ -323,13 +349,17 @@ pub(super) fn trace_ticks(
             if sw <= 0.0 {
                 return None;
             }
+            let moved = (swx / sw - c).abs();
             c = swx / sw;
             depth = light - value(c, off)?;
+            if moved < 1e-3 {
+                break;
+            }
         }
         Some((c, depth))
     };
     ticks
-        .iter()
+        .par_iter()
         .map(|&(_, t)| {
             let Some((c0, d0)) = row(t, 0.0).filter(|r| r.1 > 0.0) else {
                 return TickTrace {
