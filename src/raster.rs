@@ -23,13 +23,6 @@ pub trait Raster: Sync {
         }
     }
 
-    /// Fills `out` (length width) with the clipping flags of row `y`.
-    fn clipped_row_into(&self, y: usize, out: &mut [bool]) {
-        for (x, c) in out.iter_mut().enumerate() {
-            *c = self.clipped(x, y);
-        }
-    }
-
     /// Adds row `y` into per-block sums of values and counts of clipped pixels, blocks of
     /// `block` pixels from x = 0.
     fn add_block_row(&self, y: usize, block: usize, sums: &mut [f32], clips: &mut [u16]) {
@@ -73,9 +66,6 @@ impl Raster for Plane<'_> {
     }
     fn row_into(&self, y: usize, out: &mut [f32]) {
         self.row(y, out)
-    }
-    fn clipped_row_into(&self, y: usize, out: &mut [bool]) {
-        self.saturated_row(y, out)
     }
     fn add_block_row(&self, y: usize, block: usize, sums: &mut [f32], clips: &mut [u16]) {
         Plane::add_block_row(self, y, block, sums, clips)

@@ -156,52 +156,6 @@ impl<'a> Plane<'a> {
         }
     }
 
-    /// Fills `out` with the clipping flags of row `y` ([`Plane::saturated`] of each
-    /// pixel), from x = 0 up to the shorter of `out.len()` and the width.
-    ///
-    /// # Panics
-    /// If `y` lies outside the plane.
-    pub fn saturated_row(&self, y: usize, out: &mut [bool]) {
-        assert!(y < self.height, "row outside the plane");
-        let spp = self.photo.spp();
-        let n = out.len().min(self.width);
-        let start = y * self.width * spp;
-        let (first, count) = match self.mode {
-            Mode::Single(o) => (o, 1),
-            Mode::Luma => (0, 3),
-        };
-        fn flags<T: Copy + PartialOrd>(
-            s: &[T],
-            spp: usize,
-            first: usize,
-            count: usize,
-            clip: T,
-            out: &mut [bool],
-        ) {
-            for (px, f) in s.chunks_exact(spp).zip(out.iter_mut()) {
-                *f = px[first..first + count].iter().any(|&v| v >= clip);
-            }
-        }
-        match self.photo.samples() {
-            Samples::U8(s) => flags(
-                &s[start..start + n * spp],
-                spp,
-                first,
-                count,
-                CLIP_CODE_8,
-                &mut out[..n],
-            ),
-            Samples::U16(s) => flags(
-                &s[start..start + n * spp],
-                spp,
-                first,
-                count,
-                CLIP_CODE_16,
-                &mut out[..n],
-            ),
-        }
-    }
-
     /// Adds row `y` into per-block accumulators: for block `b` of `block` pixels,
     /// `sums[b]` gains the linear values and `clips[b]` the clipped pixels. One fused
     /// pass over the samples: the coarse map of a 12-megapixel photo reads every pixel.
