@@ -209,6 +209,38 @@ fn pitch_recovered_with_a_graph_paper_scale_at_two_metres() {
     run_geometries(&[0]);
 }
 
+/// The same photo scaled by counting the graph paper's lines along the pattern instead
+/// of two given crossings. At about 2.5 px/mm the 1 mm lines do not resolve, and the
+/// alternating 5 and 10 mm lines must be recognised as such.
+#[test]
+fn pitch_recovered_with_the_graph_paper_lines_counted() {
+    let b = Bench::new();
+    let (wl, d, l, _, _, grid) = GEOMETRIES[0];
+    assert!(grid);
+    let mut case = Case::new(wl, d, l).sharp().graph_paper();
+    case.seed = 100;
+    case.render(&b, "grid.jpg");
+    let wl_flag = format!("{}nm±0.5nm", wl * 1e9);
+    let dist = format!("{l}m±1mm");
+    let run = b.run(&[
+        "grating",
+        "grid.jpg",
+        "--wavelength",
+        &wl_flag,
+        "--distance",
+        &dist,
+        "--grid",
+        "1mm",
+        "--json",
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert_within_expanded(&run, "pitch", d);
+    assert!(
+        run.stdout.contains("\"grid\""),
+        "scale method grid in the record"
+    );
+}
+
 /// Ruler scales under camera yaw up to 12° and a few degrees of camera pitch: the
 /// ruler's tick spacing corrects the perspective along it, the convergence of its ticks
 /// the tilt about its line.

@@ -66,6 +66,17 @@ pub struct ScaleArgs {
     #[arg(long, value_name = "LENGTH", requires = "points")]
     pub length: Option<String>,
 
+    /// Graph paper as the screen: its line spacing, e.g. 1mm or 1mm±0.003mm
+    #[arg(
+        long,
+        value_name = "PITCH",
+        long_help = "Squared or graph paper used as the screen, with its line spacing (e.g. \
+                     1mm, or 1mm±0.003mm). The lines crossing the pattern are counted along \
+                     it, a little to one side of the spots, and fitted with the perspective and \
+                     the lines' convergence, so the camera need not face the paper squarely."
+    )]
+    pub grid: Option<String>,
+
     /// A known scale in millimetres per pixel on the screen
     #[arg(long = "mm-per-px", value_name = "VALUE")]
     pub mm_per_px: Option<String>,

@@ -79,18 +79,24 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
     let (photo, bytes) = output::load_photo(&args.photo.photo)?;
     clock.lap("decode");
     let forced = output::forced_channel(args.photo.channel.as_deref())?;
-    // Ruler marks are neutral grey: luma carries them at full resolution.
-    let mut map = output::screen_map(
-        &photo.plane(forced.unwrap_or(Channel::Luma)),
-        &args.scale,
-        &mut book,
-    )?;
-    clock.lap("scale");
     let by_wavelength = match &inputs.known {
         Known::Wavelength(w) => Some(w.value),
         Known::Pitch(_) => None,
     };
     let (channel, channel_note, cmap) = pattern_channel(&photo, forced, by_wavelength);
+    clock.lap("channel");
+    let stretch = match args.scale.grid {
+        Some(_) => Some(grid_stretch(&cmap, photo.width(), photo.height())?),
+        None => None,
+    };
+    // Ruler marks and grid lines are neutral grey: luma carries them at full resolution.
+    let mut map = output::screen_map(
+        &photo.plane(forced.unwrap_or(Channel::Luma)),
+        &args.scale,
+        &mut book,
+        stretch,
+    )?;
+    clock.lap("scale");
     let plane = photo.plane(channel);
     clock.lap("channel");
     let found = locate_orders(&plane, &cmap, &map, &inputs)?;
@@ -273,6 +279,67 @@ pub fn pattern_channel(
     );
     let (c, _, m) = scored.swap_remove(0);
     (c, note, m)
+}
+
+/// The stretch of graph paper a `--grid` scale is counted along: the pattern's own line
+/// through its spots, shifted to one side by three spot radii so their glare stays out of
+/// the band, reaching a tenth of its length beyond the outermost spots. The scale is then
+/// measured where the orders are, and its perspective along their line is the one that
+/// matters.
+fn grid_stretch(
+    cmap: &CoarseMap,
+    width: usize,
+    height: usize,
+) -> Result<(Vector2<f64>, Vector2<f64>), Error> {
+    let blobs = find_blobs(cmap, 8.0, 60);
+    let brightest = (0..blobs.len())
+        .max_by(|&a, &b| blobs[a].peak.total_cmp(&blobs[b].peak))
+        .ok_or_else(|| {
+            FindError::NoPattern(
+                "no bright spots to lay the --grid stretch along: nothing stands out from the \
+                 background"
+                    .into(),
+            )
+        })?;
+    let axis = pattern_axis(&blobs, Some(brightest), 16)?;
+    let pts: Vec<Vector2<f64>> = axis.members.iter().map(|&i| blobs[i].centroid).collect();
+    let line = crate::fit::line::tls_line(&pts, &vec![1.0; pts.len()]).map_err(|e| {
+        FindError::NoPattern(format!("the pattern's spots do not lie on a line: {e}"))
+    })?;
+    let t: Vec<f64> = pts.iter().map(|p| line.along(*p)).collect();
+    let (lo, hi) = t
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+            (a.min(x), b.max(x))
+        });
+    let margin = (0.1 * (hi - lo)).max(50.0);
+    let radius = axis
+        .members
+        .iter()
+        .map(|&i| blobs[i].radius_px)
+        .fold(0.0, f64::max);
+    let side = Vector2::new(-line.direction.y, line.direction.x) * (3.0 * radius + 15.0);
+    let inside = |p: Vector2<f64>| {
+        p.x >= 1.0 && p.y >= 1.0 && p.x <= width as f64 - 2.0 && p.y <= height as f64 - 2.0
+    };
+    // Clip the stretch to the frame along the line, on whichever side has room.
+    for offset in [side, -side] {
+        let at = |s: f64| line.point + line.direction * s + offset;
+        let (mut a, mut b) = (lo - margin, hi + margin);
+        while a < b && !inside(at(a)) {
+            a += 1.0;
+        }
+        while b > a && !inside(at(b)) {
+            b -= 1.0;
+        }
+        if b - a >= 0.5 * (hi - lo) && b - a >= 30.0 {
+            return Ok((at(a), at(b)));
+        }
+    }
+    Err(FindError::NoPattern(
+        "the pattern's line leaves the photo too soon to count the grid along it".into(),
+    )
+    .into())
 }
 
 /// Finds the candidates, the pattern line and the orders, then refines the order spots.

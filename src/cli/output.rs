@@ -8,7 +8,7 @@ use crate::quantity::Dimension;
 use crate::raster::Raster;
 use crate::record::overlay::{self, Mark};
 use crate::record::{self, Record, RecordError};
-use crate::scale::ruler::{self, RulerClass, RulerSpec};
+use crate::scale::ruler::{self, Marks, RulerClass, RulerSpec};
 use crate::scale::{ScaleMethod, ScreenMap, points};
 use crate::{Error, ExitCode};
 use nalgebra::Vector2;
@@ -77,24 +77,26 @@ pub fn screen_map(
     raster: &dyn Raster,
     args: &ScaleArgs,
     book: &mut InputBook,
+    pattern_stretch: Option<(Vector2<f64>, Vector2<f64>)>,
 ) -> Result<ScreenMap, Error> {
     let given = [
         args.ruler.is_some(),
         args.points.is_some(),
         args.mm_per_px.is_some(),
+        args.grid.is_some(),
     ];
     match given.iter().filter(|g| **g).count() {
         0 => {
             return Err(Error::Usage(
                 "no scale given: use one of --ruler X1,Y1,X2,Y2, --points X1,Y1,X2,Y2 --length L, \
-                 or --mm-per-px VALUE"
+                 --grid PITCH or --mm-per-px VALUE"
                     .into(),
             ));
         }
         1 => {}
         _ => {
             return Err(Error::Usage(
-                "give exactly one scale: --ruler, --points or --mm-per-px".into(),
+                "give exactly one scale: --ruler, --points, --grid or --mm-per-px".into(),
             ));
         }
     }
@@ -127,7 +129,22 @@ pub fn screen_map(
             to_px: Vector2::new(x2, y2),
             tick_mm: tick.value * 1e3,
             tick_u_rel: tick.u.map(|u| u / tick.value),
-            class,
+            marks: Marks::Ruler(class),
+        };
+        let (map, _fit) = ruler::measure(raster, &spec)?;
+        return Ok(map);
+    }
+    if let Some(text) = &args.grid {
+        let pitch = positive_flag("grid", text, Dimension::Length)?;
+        let (from_px, to_px) = pattern_stretch.ok_or_else(|| {
+            Error::Usage("--grid needs the pattern's spots to lay its stretch along".into())
+        })?;
+        let spec = RulerSpec {
+            from_px,
+            to_px,
+            tick_mm: pitch.value * 1e3,
+            tick_u_rel: pitch.u.map(|u| u / pitch.value),
+            marks: Marks::Grid,
         };
         let (map, _fit) = ruler::measure(raster, &spec)?;
         return Ok(map);

@@ -161,6 +161,7 @@ pub fn demo(a: &DemoArgs) -> Result<ExitCode, Error> {
             ruler_class: None,
             points: None,
             length: None,
+            grid: None,
             mm_per_px: None,
         },
         output: OutputArgs {

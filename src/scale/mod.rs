@@ -41,6 +41,8 @@ pub enum ScaleMethod {
     Ruler,
     /// Two points a known length apart.
     Points,
+    /// The lines of graph paper used as the screen, counted along the pattern.
+    Grid,
     /// A given millimetres-per-pixel factor.
     MmPerPx,
 }
@@ -51,6 +53,7 @@ impl ScaleMethod {
         match self {
             ScaleMethod::Ruler => "ruler",
             ScaleMethod::Points => "points",
+            ScaleMethod::Grid => "grid",
             ScaleMethod::MmPerPx => "mm-per-px",
         }
     }

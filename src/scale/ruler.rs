@@ -14,6 +14,7 @@ use crate::scale::profile::{BandProfile, band_profile};
 use crate::scale::ticks::{self, count_ticks, locate_ticks};
 use nalgebra::{Matrix3, Vector2};
 use rayon::prelude::*;
+use std::collections::HashMap;
 
 /// Accuracy class of a ruler, after OIML R 35 / MID MI-008 for material measures of
 /// length: maximum permissible error ±(a + b·L) mm with L in whole metres rounded up.
@@ -71,9 +72,23 @@ pub struct RulerSpec {
     pub tick_mm: f64,
     /// Relative standard uncertainty of the tick spacing beyond the class, if given.
     pub tick_u_rel: Option<f64>,
-    /// Accuracy class for the ruler's own error.
-    pub class: RulerClass,
+    /// What carries the marks.
+    pub marks: Marks,
 }
+
+/// What carries the marks counted along the stretch.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Marks {
+    /// A ruler's ticks, of an accuracy class.
+    Ruler(RulerClass),
+    /// The lines of squared or graph paper used as the screen, counted across.
+    Grid,
+}
+
+/// Half-width of the rectangular distribution taken for a graph paper's line spacing
+/// when none is given: ±0.3 %, printing and the paper's swelling with humidity (common
+/// practice for office paper).
+pub const GRID_PITCH_HALF_WIDTH: f64 = 0.003;
 
 /// The tick fit behind a ruler scale, for the record and tests.
 #[derive(Debug, Clone)]
@@ -127,16 +142,63 @@ pub fn measure(raster: &dyn Raster, spec: &RulerSpec) -> Result<(ScreenMap, Tick
         }
     }
     let profile = best_band(raster, a, b)?;
-    let ticks = locate_ticks(&profile)?;
+    let marks = locate_ticks(&profile)?;
+    let ticks: Vec<(i64, f64)> = marks.iter().map(|&(k, t, _)| (k, t)).collect();
     let fit = fit_ticks(&ticks, length)?;
+    let mut spec = *spec;
+    let mut class_note = None;
+    if spec.marks == Marks::Grid {
+        let depth: HashMap<i64, f64> = marks.iter().map(|&(k, _, d)| (k, d)).collect();
+        let depths: Vec<f64> = fit.ticks.iter().map(|(k, _)| depth[k]).collect();
+        (spec.tick_mm, class_note) = grid_line_class(&fit, &depths, spec.tick_mm)?;
+    }
+    let spec = &spec;
     let traces = ticks::trace_ticks(raster, &profile, &fit.ticks, fit.period_px);
-    if (spec.tick_mm - 1.0).abs() < 1e-9 {
+    if matches!(spec.marks, Marks::Ruler(_)) && (spec.tick_mm - 1.0).abs() < 1e-9 {
         check_millimetre_ticks(&fit, &traces)?;
     }
     let slants: Vec<ticks::TickSlant> = traces.iter().filter_map(|t| t.slant).collect();
     let convergence = fit_convergence(&slants);
-    let map = build_map(raster, &profile, &fit, convergence.as_ref(), spec)?;
+    let mut map = build_map(raster, &profile, &fit, convergence.as_ref(), spec)?;
+    if let Some(note) = class_note {
+        map.warnings.push(note);
+    }
     Ok((map, fit))
+}
+
+/// Which lines of a graph paper were counted, from their depths: on the common paper
+/// every 5th and 10th line is heavier (common practice of paper makers). Every fifth
+/// line darker: the stated lines themselves. Alternately darker: only the heavier lines
+/// were resolved, five stated spacings apart. Neither, on paper ruled finer than 2 mm:
+/// refused, since the 10 mm lines alone look just like that. Returns the spacing of the
+/// lines counted and, when it is not the stated one, a note.
+fn grid_line_class(
+    fit: &TickFit,
+    depths: &[f64],
+    pitch_mm: f64,
+) -> Result<(f64, Option<String>), ScaleError> {
+    let every_fifth = ticks::phase_contrast(&fit.ticks, depths, 5).unwrap_or(1.0);
+    let alternate = ticks::phase_contrast(&fit.ticks, depths, 2).unwrap_or(1.0);
+    if every_fifth >= FIFTH_TICK_RATIO {
+        return Ok((pitch_mm, None));
+    }
+    if alternate >= FIFTH_TICK_RATIO {
+        let counted = 5.0 * pitch_mm;
+        let note = format!(
+            "the graph paper's {pitch_mm} mm lines are too fine to resolve in this photo: its \
+             heavier lines, alternately every 5th and 10th, were counted, {counted} mm apart"
+        );
+        return Ok((counted, Some(note)));
+    }
+    if pitch_mm < 2.0 {
+        return Err(ScaleError::NotMeasured(format!(
+            "the grid lines found every {:.1} px are all alike: on {pitch_mm} mm graph paper \
+             they may be the 10 mm lines with the finer ones unresolved. Photograph the paper \
+             closer, or give the spacing of the lines that show (--grid 10mm)",
+            fit.period_px
+        )));
+    }
+    Ok((pitch_mm, None))
 }
 
 /// Steps across the rough line to find the band of the finest ticks, then widens the
@@ -232,7 +294,7 @@ fn check_millimetre_ticks(fit: &TickFit, traces: &[ticks::TickTrace]) -> Result<
         .iter()
         .map(|t| (t.extent.1 - t.extent.0 + 1).max(0) as f64)
         .collect();
-    match ticks::fifth_tick_contrast(&fit.ticks, &lengths) {
+    match ticks::phase_contrast(&fit.ticks, &lengths, 5) {
         Some(ratio) if ratio >= FIFTH_TICK_RATIO => Ok(()),
         Some(ratio) => Err(ScaleError::NotMeasured(format!(
             "the marks found along the ruler every {:.1} px show no longer mark every fifth \
@@ -425,7 +487,7 @@ fn fit_ticks(ticks: &[(i64, f64)], length_px: f64) -> Result<TickFit, ScaleError
         }
     }
     Err(ScaleError::NotMeasured(
-        "the ruler tick fit kept rejecting marks".into(),
+        "the fit of the marks' positions kept rejecting marks: they are not evenly spaced".into(),
     ))
 }
 
@@ -454,8 +516,11 @@ fn build_map(
     let slide = Matrix3::new(1.0, -alpha, 0.0, 0.0, 1.0, 0.0, 0.0, beta, 1.0);
     let to_line = Matrix3::new(u.x, u.y, -u.dot(&o), n.x, n.y, -n.dot(&o), 0.0, 0.0, 1.0);
     let reference = o + u * t_ref;
-    let mut map =
-        ScreenMap::from_homography(ScaleMethod::Ruler, ruler * slide * to_line, reference)?;
+    let method = match spec.marks {
+        Marks::Ruler(_) => ScaleMethod::Ruler,
+        Marks::Grid => ScaleMethod::Grid,
+    };
+    let mut map = ScreenMap::from_homography(method, ruler * slide * to_line, reference)?;
     map.residual_px = Some(fit.rms_px);
     map.stretch_px = Some((
         profile.origin,
@@ -496,18 +561,33 @@ fn build_map(
     let (kf, _) = fit.ticks[0];
     let (kl, _) = fit.ticks[fit.ticks.len() - 1];
     let stretch_mm = (kl - kf) as f64 * tick;
-    let mpe = spec.class.mpe_mm(stretch_mm);
-    map = map.with_component(
-        format!("ruler accuracy class {}", spec.class.name()),
-        mpe / 3f64.sqrt() / stretch_mm,
-    );
-    map.assumptions.push(format!(
-        "ruler error within the class {} maximum permissible error ±{mpe:.1} mm over the \
-         {stretch_mm:.0} mm stretch (MI-008), taken as a rectangular distribution",
-        spec.class.name()
-    ));
-    if let Some(u) = spec.tick_u_rel {
-        map = map.with_component("tick spacing", u);
+    match spec.marks {
+        Marks::Ruler(class) => {
+            let mpe = class.mpe_mm(stretch_mm);
+            map = map.with_component(
+                format!("ruler accuracy class {}", class.name()),
+                mpe / 3f64.sqrt() / stretch_mm,
+            );
+            map.assumptions.push(format!(
+                "ruler error within the class {} maximum permissible error ±{mpe:.1} mm over \
+                 the {stretch_mm:.0} mm stretch (MI-008), taken as a rectangular distribution",
+                class.name()
+            ));
+            if let Some(u) = spec.tick_u_rel {
+                map = map.with_component("tick spacing", u);
+            }
+        }
+        Marks::Grid => {
+            let u = spec.tick_u_rel.unwrap_or_else(|| {
+                map.assumptions.push(format!(
+                    "graph paper line spacing not given with an uncertainty: ±{:.1} % \
+                     (rectangular) assumed for printing and the paper's swelling",
+                    100.0 * GRID_PITCH_HALF_WIDTH
+                ));
+                GRID_PITCH_HALF_WIDTH / 3f64.sqrt()
+            });
+            map = map.with_component("grid line spacing", u);
+        }
     }
     if fit.drift.abs() > DRIFT_WARNING {
         map.warnings.push(format!(
@@ -562,7 +642,7 @@ mod tests {
             to_px: Vector2::new(880.0, 57.0),
             tick_mm,
             tick_u_rel: None,
-            class: RulerClass::II,
+            marks: Marks::Ruler(RulerClass::II),
         }
     }
 

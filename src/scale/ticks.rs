@@ -30,8 +30,8 @@ pub(super) struct TickRun {
     pub period: f64,
     /// How far that period stands above the spectrum's noise floor.
     pub score: f64,
-    /// (tick index, centre in samples), consecutive up to holes.
-    pub ticks: Vec<(i64, f64)>,
+    /// (tick index, centre in samples, depth below the paper), consecutive up to holes.
+    pub ticks: Vec<(i64, f64, f64)>,
 }
 
 /// Least share of the stretch the counted ticks must span: the user's stretch lies along
@@ -109,8 +109,9 @@ struct Dip {
 }
 
 /// Finds every tick along the profile and numbers them: (tick index, position along the
-/// stretch in px). Indices are consecutive integers up to holes where a tick is hidden.
-pub(super) fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64)>, ScaleError> {
+/// stretch in px, depth below the paper). Indices are consecutive integers up to holes
+/// where a tick is hidden.
+pub(super) fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64, f64)>, ScaleError> {
     let run = count_ticks(&mut PeriodEstimator::new(), &profile.values).ok_or_else(|| {
         ScaleError::NotMeasured(
             "no regular run of tick marks over half the ruler stretch; check the --ruler \
@@ -128,7 +129,7 @@ pub(super) fn locate_ticks(profile: &BandProfile) -> Result<Vec<(i64, f64)>, Sca
     Ok(run
         .ticks
         .into_iter()
-        .map(|(k, c)| (k, c * profile.step_px))
+        .map(|(k, c, d)| (k, c * profile.step_px, d))
         .collect())
 }
 
@@ -227,7 +228,7 @@ fn find_dips(v: &[f64], period: f64) -> Vec<Dip> {
 /// spacing (a printed digit, a scratch) is dropped in favour of the deeper one; a gap
 /// that is not close to a whole number of spacings, or spans more than three, breaks the
 /// count, and the longest consistently counted run is kept.
-fn index_dips(dips: &[Dip], period: f64) -> Vec<(i64, f64)> {
+fn index_dips(dips: &[Dip], period: f64) -> Vec<(i64, f64, f64)> {
     let mut kept: Vec<Dip> = dips.to_vec();
     kept.sort_by(|a, b| a.centre.total_cmp(&b.centre));
     // Drop the shallower of any pair too close to be neighbouring ticks, then re-judge.
@@ -251,16 +252,16 @@ fn index_dips(dips: &[Dip], period: f64) -> Vec<(i64, f64)> {
         return Vec::new();
     }
     let spacing = local_spacings(&kept, period);
-    let mut runs: Vec<Vec<(i64, f64)>> = vec![vec![(0, kept[0].centre)]];
+    let mut runs: Vec<Vec<(i64, f64, f64)>> = vec![vec![(0, kept[0].centre, kept[0].depth)]];
     for j in 0..kept.len() - 1 {
         let ratio = (kept[j + 1].centre - kept[j].centre) / spacing[j];
         let steps = ratio.round();
         let run = runs.last_mut().expect("one run at least");
         if (ratio - steps).abs() <= 0.3 && (1.0..=3.0).contains(&steps) {
             let k = run.last().expect("runs are never empty").0 + steps as i64;
-            run.push((k, kept[j + 1].centre));
+            run.push((k, kept[j + 1].centre, kept[j + 1].depth));
         } else {
-            runs.push(vec![(0, kept[j + 1].centre)]);
+            runs.push(vec![(0, kept[j + 1].centre, kept[j + 1].depth)]);
         }
     }
     runs.into_iter().max_by_key(|r| r.len()).unwrap_or_default()
@@ -417,18 +418,19 @@ fn line_through(pts: &[(f64, f64)]) -> TickSlant {
     }
 }
 
-/// Whether every fifth tick is clearly longer than the rest, as on any millimetre
-/// ruler (5 mm and 10 mm marks; common practice of rule makers). Returns, for the phase
-/// that makes it largest, the mean length of every fifth tick over the mean of the rest,
-/// or None when too few ticks were measured. Means, not medians: counted 5 mm marks
-/// alternate with 10 mm ones, and the median of a handful of alternating values swings
-/// to either length, while their mean stays in between.
-pub(super) fn fifth_tick_contrast(ticks: &[(i64, f64)], lengths: &[f64]) -> Option<f64> {
+/// Whether every `modulus`-th mark stands out from the rest in `values` (a tick's length,
+/// a line's depth), as the 5 mm and 10 mm marks of a millimetre ruler or graph paper do
+/// (common practice of rule and paper makers). Returns, for the phase that makes it
+/// largest, the mean value of every `modulus`-th mark over the mean of the rest, or None
+/// when too few marks were measured. Means, not medians: counted 5 mm marks alternate
+/// with 10 mm ones, and the median of a handful of alternating values swings to either,
+/// while their mean stays in between.
+pub(super) fn phase_contrast(ticks: &[(i64, f64)], values: &[f64], modulus: i64) -> Option<f64> {
     let mut best: Option<f64> = None;
-    for phase in 0..5 {
+    for phase in 0..modulus {
         let (mut long, mut rest) = ((0.0, 0usize), (0.0, 0usize));
-        for (&(k, _), &len) in ticks.iter().zip(lengths) {
-            let class = if k.rem_euclid(5) == phase {
+        for (&(k, _), &len) in ticks.iter().zip(values) {
+            let class = if k.rem_euclid(modulus) == phase {
                 &mut long
             } else {
                 &mut rest
@@ -436,10 +438,10 @@ pub(super) fn fifth_tick_contrast(ticks: &[(i64, f64)], lengths: &[f64]) -> Opti
             class.0 += len;
             class.1 += 1;
         }
-        if long.1 < 3 || rest.1 < 8 {
+        if long.1 < 3 || rest.1 < 3 {
             continue;
         }
-        let ratio = (long.0 / long.1 as f64) / (rest.0 / rest.1 as f64).max(1.0);
+        let ratio = (long.0 / long.1 as f64) / (rest.0 / rest.1 as f64).max(1e-12);
         best = Some(best.map_or(ratio, |b: f64| b.max(ratio)));
     }
     best
@@ -467,7 +469,7 @@ mod tests {
         let centres: Vec<f64> = (0..60).map(|k| 5.0 + t(k as f64)).collect();
         let got = index_dips(&dips(&centres), 17.0);
         assert_eq!(got.len(), 60);
-        for (i, (k, _)) in got.iter().enumerate() {
+        for (i, (k, _, _)) in got.iter().enumerate() {
             assert_eq!(*k, i as i64);
         }
     }
@@ -481,8 +483,11 @@ mod tests {
         d.last_mut().unwrap().depth = 0.4;
         let got = index_dips(&d, 10.0);
         assert_eq!(got.len(), 29);
-        assert!(got.iter().all(|&(k, c)| (c - 10.0 * k as f64).abs() < 1e-9));
-        assert!(!got.iter().any(|&(k, _)| k == 12));
+        assert!(
+            got.iter()
+                .all(|&(k, c, _)| (c - 10.0 * k as f64).abs() < 1e-9)
+        );
+        assert!(!got.iter().any(|&(k, _, _)| k == 12));
     }
 
     #[test]
@@ -495,9 +500,9 @@ mod tests {
             _ => 30.0,
         };
         let lengths: Vec<f64> = mm.iter().map(|&(k, _)| len(k)).collect();
-        assert!(fifth_tick_contrast(&mm, &lengths).unwrap() > 1.4);
+        assert!(phase_contrast(&mm, &lengths, 5).unwrap() > 1.4);
         // The same ruler with only its 5 mm marks resolved: lengths alternate 45, 60.
         let coarse: Vec<f64> = (0..40).map(|k| len(5 * k)).collect();
-        assert!(fifth_tick_contrast(&mm, &coarse).unwrap() < 1.2);
+        assert!(phase_contrast(&mm, &coarse, 5).unwrap() < 1.2);
     }
 }
