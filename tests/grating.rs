@@ -303,8 +303,13 @@ fn clean_spots_land_within_a_tenth_of_a_pixel_of_truth() {
     }
 }
 
+/// Known failure, kept runnable with `cargo test --release -- --ignored`. The clutter is
+/// now told from the laser by colour and the three orders are found where the truth
+/// puts them, but the two graph-paper points give a similarity scale blind to the 9° yaw
+/// (the sides come out 568 and 459 mm), so no −1, 0, +1 assignment fits one λ/d; and at
+/// about 2 px/mm the paper's lines are too fine for `--grid`.
 #[test]
-#[ignore = "known failure: clutter blobs (table edge, window) are taken as orders; 9° yaw uneven"]
+#[ignore = "known failure: two points cannot correct the 9° yaw, and at 2 px/mm --grid finds no lines"]
 fn practitioner_photo_with_graph_paper_clutter_and_glints() {
     // Small saturated haloed spots on graph paper seen obliquely, a table with objects in
     // the lower part, a glint off the line and a window reflection in a corner; the

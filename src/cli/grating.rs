@@ -6,7 +6,7 @@ use super::inputs::{DefaultU, InputBook, parse_flag, positive_flag};
 use super::output::{self, Clock};
 use crate::find::FindError;
 use crate::find::axis::pattern_axis;
-use crate::find::blobs::{CoarseMap, block_size_for, coarse_map, find_blobs};
+use crate::find::blobs::{Blob, CoarseMap, block_size_for, coarse_map, find_blobs};
 use crate::find::spot::{self, Spot};
 use crate::optics::grating::{self, GratingInputs, GratingSolution, Known, Mode, OrderSpot};
 use crate::photo::{Channel, Photo};
@@ -86,7 +86,7 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
     let (channel, channel_note, cmap) = pattern_channel(&photo, forced, by_wavelength);
     clock.lap("channel");
     let stretch = match args.scale.grid {
-        Some(_) => Some(grid_stretch(&cmap, photo.width(), photo.height())?),
+        Some(_) => Some(grid_stretch(&photo, channel, &cmap)?),
         None => None,
     };
     // Ruler marks and grid lines are neutral grey: luma carries them at full resolution.
@@ -97,9 +97,8 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
         stretch,
     )?;
     clock.lap("scale");
-    let plane = photo.plane(channel);
     clock.lap("channel");
-    let found = locate_orders(&plane, &cmap, &map, &inputs)?;
+    let found = locate_orders(&photo, channel, &cmap, &map, &inputs)?;
     clock.lap("spots");
     let order_spots: Vec<OrderSpot> = found
         .spots
@@ -281,17 +280,76 @@ pub fn pattern_channel(
     (c, note, m)
 }
 
+/// Leaves out the candidates whose light is not the laser's. A laser is nearly
+/// monochromatic, so its spots stand out in the pattern's colour channel far more than
+/// in the other two, while a white glint, a window or a lamp brightens all three alike.
+/// Each candidate's excess over the ring around it is compared channel by channel; a
+/// candidate whose strongest other channel gains more than `MAX_CROSS_COLOUR` of the
+/// pattern channel's excess is dropped. Grey photos and `--channel luma` keep all.
+fn keep_laser_coloured(photo: &Photo, channel: Channel, blobs: &mut Vec<Blob>) {
+    let others: Vec<Channel> = match channel {
+        Channel::R => vec![Channel::G, Channel::B],
+        Channel::G => vec![Channel::R, Channel::B],
+        Channel::B => vec![Channel::R, Channel::G],
+        Channel::Luma => return,
+    };
+    if photo.channels() < 3 {
+        return;
+    }
+    let (w, h) = (photo.width(), photo.height());
+    let excess = |c: Channel, b: &Blob| -> f64 {
+        let plane = photo.plane(c);
+        let (x0, y0, x1, y1) = b.bbox;
+        let (bw, bh) = (x1 + 1 - x0, y1 + 1 - y0);
+        let (px, py) = (bw.div_ceil(2), bh.div_ceil(2));
+        let (ox0, oy0) = (x0.saturating_sub(px), y0.saturating_sub(py));
+        let (ox1, oy1) = ((x1 + px).min(w - 1), (y1 + py).min(h - 1));
+        let step = ((bw * bh) as f64 / 400.0).sqrt().ceil().max(1.0) as usize;
+        let (mut inner, mut ni, mut ring, mut nr) = (0.0, 0usize, 0.0, 0usize);
+        for y in (oy0..=oy1).step_by(step) {
+            for x in (ox0..=ox1).step_by(step) {
+                let v = f64::from(plane.get(x, y));
+                if (x0..=x1).contains(&x) && (y0..=y1).contains(&y) {
+                    inner += v;
+                    ni += 1;
+                } else {
+                    ring += v;
+                    nr += 1;
+                }
+            }
+        }
+        inner / ni.max(1) as f64 - ring / nr.max(1) as f64
+    };
+    blobs.retain(|b| {
+        let own = excess(channel, b);
+        let cross = others
+            .iter()
+            .map(|&c| excess(c, b))
+            .fold(f64::MIN, f64::max);
+        own > 0.0 && cross <= MAX_CROSS_COLOUR * own
+    });
+}
+
+/// Largest excess in another colour channel, as a share of the pattern channel's, for
+/// a candidate still taken as laser light. A laser line lies in one filter's band of a
+/// Bayer sensor, and the other two pass about a tenth of it (common practice), but a
+/// clipped core reads low in its own channel while its halo still spills into the
+/// others; white light gains alike in all three (a share near 1).
+const MAX_CROSS_COLOUR: f64 = 0.6;
+
 /// The stretch of graph paper a `--grid` scale is counted along: the pattern's own line
 /// through its spots, shifted to one side by three spot radii so their glare stays out of
 /// the band, reaching a tenth of its length beyond the outermost spots. The scale is then
 /// measured where the orders are, and its perspective along their line is the one that
 /// matters.
 fn grid_stretch(
+    photo: &Photo,
+    channel: Channel,
     cmap: &CoarseMap,
-    width: usize,
-    height: usize,
 ) -> Result<(Vector2<f64>, Vector2<f64>), Error> {
-    let blobs = find_blobs(cmap, 8.0, 60);
+    let (width, height) = (photo.width(), photo.height());
+    let mut blobs = find_blobs(cmap, 8.0, 60);
+    keep_laser_coloured(photo, channel, &mut blobs);
     let brightest = (0..blobs.len())
         .max_by(|&a, &b| blobs[a].peak.total_cmp(&blobs[b].peak))
         .ok_or_else(|| {
@@ -344,7 +402,8 @@ fn grid_stretch(
 
 /// Finds the candidates, the pattern line and the orders, then refines the order spots.
 pub fn locate_orders(
-    raster: &dyn Raster,
+    photo: &Photo,
+    channel: Channel,
     cmap: &CoarseMap,
     map: &ScreenMap,
     inputs: &GratingInputs,
@@ -359,7 +418,10 @@ pub fn locate_orders(
         ))
         .into());
     }
+    let plane = photo.plane(channel);
+    let raster: &dyn Raster = &plane;
     let mut blobs = find_blobs(cmap, 8.0, 60);
+    keep_laser_coloured(photo, channel, &mut blobs);
     // The ruler's light strip and its marks are not spots.
     if let (ScaleMethod::Ruler, Some((a, b))) = (map.method, map.stretch_px) {
         let reach = 0.1 * (b - a).norm() + 10.0;

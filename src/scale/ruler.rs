@@ -250,8 +250,9 @@ fn best_band(
         .fold(f64::INFINITY, f64::min);
     if !finest.is_finite() {
         return Err(ScaleError::NotMeasured(
-            "the ruler's ticks are seen along only one line of pixels; give the --ruler ends \
-             on the tick marks"
+            "no regular marks hold across more than one line of pixels along the stretch: the \
+             ruler's ticks or the paper's lines are too faint or too fine here (they must be \
+             at least 3 px apart)"
                 .into(),
         ));
     }
