@@ -89,6 +89,9 @@ pub struct LinearFit {
     pub rms_residual: f64,
     /// Weighted residual variance s² = Σ w r² / (n − 2).
     pub s2: f64,
+    /// Weighted spread of x about its mean, Σ w (x − x̄)²: with absolute weights
+    /// 1/u², the slope's variance from the stated uncertainties alone is 1/sxx.
+    pub sxx: f64,
 }
 
 /// Weighted least-squares straight line. Weights are relative (the scale of the
@@ -135,6 +138,7 @@ pub fn fit_line(x: &[f64], y: &[f64], w: &[f64]) -> Result<LinearFit, FitError> 
         covariance: [[var_a, cov_ab], [cov_ab, var_b]],
         rms_residual: (ss / n as f64).sqrt(),
         s2,
+        sxx,
     })
 }
 

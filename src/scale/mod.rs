@@ -84,6 +84,26 @@ pub struct AcrossLine {
     pub u_rel_per_px: f64,
 }
 
+impl AcrossLine {
+    /// The largest distance from the line, px, of any of `points`.
+    pub fn farthest(&self, points: &[Vector2<f64>]) -> f64 {
+        points
+            .iter()
+            .map(|p| self.normal.dot(&(p - self.origin)).abs())
+            .fold(0.0, f64::max)
+    }
+
+    /// The largest distance from the line, px, of a corner of a `width`×`height` frame.
+    pub fn reach_in_frame(&self, width: f64, height: f64) -> f64 {
+        self.farthest(&[
+            Vector2::new(0.0, 0.0),
+            Vector2::new(width, 0.0),
+            Vector2::new(0.0, height),
+            Vector2::new(width, height),
+        ])
+    }
+}
+
 /// A map from upright photo pixels to millimetres on the screen plane.
 #[derive(Debug, Clone)]
 pub struct ScreenMap {
@@ -163,15 +183,9 @@ impl ScreenMap {
         width: f64,
         height: f64,
     ) -> Self {
-        let corners = [
-            Vector2::new(0.0, 0.0),
-            Vector2::new(width, 0.0),
-            Vector2::new(0.0, height),
-            Vector2::new(width, height),
-        ];
         self.components.push(ScaleComponent {
             name: name.into(),
-            u_rel: across.u_rel_per_px * farthest(&across, &corners),
+            u_rel: across.u_rel_per_px * across.reach_in_frame(width, height),
             across: Some(across),
         });
         self
@@ -185,7 +199,7 @@ impl ScreenMap {
         }
         for c in &mut self.components {
             if let Some(a) = c.across {
-                c.u_rel = a.u_rel_per_px * farthest(&a, points_px);
+                c.u_rel = a.u_rel_per_px * a.farthest(points_px);
             }
         }
     }
@@ -241,13 +255,6 @@ impl ScreenMap {
 fn project(h: &Matrix3<f64>, p: Vector2<f64>) -> Vector2<f64> {
     let q = h * Vector3::new(p.x, p.y, 1.0);
     Vector2::new(q.x / q.z, q.y / q.z)
-}
-
-fn farthest(a: &AcrossLine, points: &[Vector2<f64>]) -> f64 {
-    points
-        .iter()
-        .map(|p| a.normal.dot(&(p - a.origin)).abs())
-        .fold(0.0, f64::max)
 }
 
 #[cfg(test)]

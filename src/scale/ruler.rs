@@ -7,6 +7,7 @@
 //! was not square to the screen.
 
 use super::{AcrossLine, ScaleError, ScaleMethod, ScreenMap};
+use crate::fit::line::fit_line;
 use crate::fit::lm::{self, LeastSquares, LmOptions};
 use crate::fit::spectral::PeriodEstimator;
 use crate::raster::Raster;
@@ -337,25 +338,11 @@ fn fit_convergence(slants: &[ticks::TickSlant]) -> Option<Convergence> {
         if kept.len() < 6 {
             return None;
         }
+        let t: Vec<f64> = kept.iter().map(|s| s.t).collect();
+        let slope: Vec<f64> = kept.iter().map(|s| s.slope).collect();
         let w: Vec<f64> = kept.iter().map(|s| 1.0 / (s.u * s.u)).collect();
-        let sw: f64 = w.iter().sum();
-        let tm = kept.iter().zip(&w).map(|(s, w)| w * s.t).sum::<f64>() / sw;
-        let sm = kept.iter().zip(&w).map(|(s, w)| w * s.slope).sum::<f64>() / sw;
-        let stt: f64 = kept
-            .iter()
-            .zip(&w)
-            .map(|(s, w)| w * (s.t - tm).powi(2))
-            .sum();
-        let sts: f64 = kept
-            .iter()
-            .zip(&w)
-            .map(|(s, w)| w * (s.t - tm) * (s.slope - sm))
-            .sum();
-        if !(stt > 0.0) {
-            return None;
-        }
-        let beta = sts / stt;
-        let alpha = sm - beta * tm;
+        let fit = fit_line(&t, &slope, &w).ok()?;
+        let (alpha, beta) = (fit.intercept, fit.slope);
         let norm: Vec<f64> = kept
             .iter()
             .map(|s| (s.slope - alpha - beta * s.t) / s.u)
@@ -371,12 +358,12 @@ fn fit_convergence(slants: &[ticks::TickSlant]) -> Option<Convergence> {
             keep
         });
         if kept.len() == before {
-            let chi2: f64 = norm.iter().map(|r| r * r).sum();
-            let birge = (chi2 / (kept.len() - 2) as f64).max(1.0);
+            // The weights are 1/u², so s² is the square of the Birge ratio.
+            let birge2 = fit.s2.max(1.0);
             return Some(Convergence {
                 alpha,
                 beta,
-                u_beta: (birge / stt).sqrt(),
+                u_beta: (birge2 / fit.sxx).sqrt(),
                 ticks: kept.len(),
             });
         }
@@ -531,10 +518,6 @@ fn build_map(
     // The scale at offset o across the ruler is 1/(1 + β·o) of that on it, so the
     // convergence adds u(β)·|o| where the features lie.
     let (w, h) = (raster.width() as f64, raster.height() as f64);
-    let reach = [(0.0, 0.0), (w, 0.0), (0.0, h), (w, h)]
-        .iter()
-        .map(|&(x, y)| n.dot(&(Vector2::new(x, y) - o)).abs())
-        .fold(0.0, f64::max);
     match convergence {
         Some(v) => {
             let line = AcrossLine {
@@ -543,7 +526,7 @@ fn build_map(
                 u_rel_per_px: v.u_beta,
             };
             map = map.with_component_across("ruler tick convergence", line, w, h);
-            let change = v.beta * reach;
+            let change = v.beta * line.reach_in_frame(w, h);
             if change.abs() > DRIFT_WARNING {
                 map.warnings.push(format!(
                     "the ruler's ticks converge: the scale changes by {:.1} % from the ruler \

@@ -7,6 +7,7 @@
 //! a walk that predicts from the mean period loses lock where the spacing is far from it.
 
 use super::ScaleError;
+use crate::fit::line::fit_line;
 use crate::fit::spectral::PeriodEstimator;
 use crate::raster::Raster;
 use crate::scale::profile::BandProfile;
@@ -19,6 +20,35 @@ pub(super) const MIN_PERIOD_SAMPLES: f64 = 6.0;
 /// Most re-centring steps of a darkness-weighted centroid; it stops sooner once it
 /// moves by less than a thousandth of a sample.
 const MAX_CENTROID_STEPS: usize = 20;
+
+/// Darkness-weighted centroid of `weight` over c ± half, in quarter-sample steps; None
+/// where the window holds no weight or leaves the data.
+fn centroid(c: f64, half: f64, weight: impl Fn(f64) -> Option<f64>) -> Option<f64> {
+    let (mut sw, mut swx) = (0.0, 0.0);
+    let mut x = c - half;
+    while x <= c + half {
+        let d = weight(x)?;
+        sw += d;
+        swx += d * x;
+        x += 0.25;
+    }
+    (sw > 0.0).then(|| swx / sw)
+}
+
+/// Re-centres from `start` by `step` until it moves by less than a thousandth of a
+/// sample, or [`MAX_CENTROID_STEPS`] times.
+fn converge(start: f64, mut step: impl FnMut(f64) -> Option<f64>) -> Option<f64> {
+    let mut c = start;
+    for _ in 0..MAX_CENTROID_STEPS {
+        let next = step(c)?;
+        let moved = (next - c).abs();
+        c = next;
+        if moved < 1e-3 {
+            break;
+        }
+    }
+    Some(c)
+}
 
 /// Fewest ticks a scale is built from.
 const MIN_TICKS: usize = 8;
@@ -197,27 +227,11 @@ fn find_dips(v: &[f64], period: f64) -> Vec<Dip> {
     peaks
         .iter()
         .filter_map(|&(i, depth)| {
-            let mut c = i as f64;
-            for _ in 0..MAX_CENTROID_STEPS {
-                let (mut sw, mut swx) = (0.0, 0.0);
-                let mut x = c - core;
-                while x <= c + core {
-                    // Only the part of the dip deeper than a fifth of its own depth counts,
-                    // so a tilted paper level cannot pull the centroid sideways.
-                    let d = (sample(x) - 0.2 * depth).max(0.0);
-                    sw += d;
-                    swx += d * x;
-                    x += 0.25;
-                }
-                if sw <= 0.0 {
-                    return None;
-                }
-                let moved = (swx / sw - c).abs();
-                c = swx / sw;
-                if moved < 1e-3 {
-                    break;
-                }
-            }
+            // Only the part of the dip deeper than a fifth of its own depth counts, so a
+            // tilted paper level cannot pull the centroid sideways.
+            let c = converge(i as f64, |c| {
+                centroid(c, core, |x| Some((sample(x) - 0.2 * depth).max(0.0)))
+            })?;
             (c - core >= 0.0 && c + core <= (n - 1) as f64).then_some(Dip { centre: c, depth })
         })
         .collect()
@@ -332,32 +346,16 @@ pub(super) fn trace_ticks(
         raster.bilinear(p.x, p.y).map(f64::from)
     };
     // Centre and darkness of the tick on row `off`, starting from `c`.
-    let row = |mut c: f64, off: f64| -> Option<(f64, f64)> {
+    let row = |c: f64, off: f64| -> Option<(f64, f64)> {
         // Iterated to convergence: a window narrower than the blurred tick pulls each
         // centroid towards where the window started, and stopping early would carry
         // that lag from row to row and flatten the slant.
-        let mut depth = 0.0;
-        for _ in 0..MAX_CENTROID_STEPS {
-            let light = 0.5 * (value(c - 0.5 * period_px, off)? + value(c + 0.5 * period_px, off)?);
-            let (mut sw, mut swx) = (0.0, 0.0);
-            let mut x = c - half;
-            while x <= c + half {
-                let d = (light - value(x, off)?).max(0.0);
-                sw += d;
-                swx += d * x;
-                x += 0.25;
-            }
-            if sw <= 0.0 {
-                return None;
-            }
-            let moved = (swx / sw - c).abs();
-            c = swx / sw;
-            depth = light - value(c, off)?;
-            if moved < 1e-3 {
-                break;
-            }
-        }
-        Some((c, depth))
+        let mut light = 0.0;
+        let c = converge(c, |c| {
+            light = 0.5 * (value(c - 0.5 * period_px, off)? + value(c + 0.5 * period_px, off)?);
+            centroid(c, half, |x| Some((light - value(x, off)?).max(0.0)))
+        })?;
+        Some((c, light - value(c, off)?))
     };
     ticks
         .par_iter()
@@ -391,31 +389,27 @@ pub(super) fn trace_ticks(
                 .collect();
             TickTrace {
                 extent: (ends[0], ends[1]),
-                slant: (core.len() >= 6).then(|| line_through(&core)),
+                slant: if core.len() >= 6 {
+                    line_through(&core)
+                } else {
+                    None
+                },
             }
         })
         .collect()
 }
 
-/// Least-squares line t = t0 + slope·o through (o, t) rows of a tick.
-fn line_through(pts: &[(f64, f64)]) -> TickSlant {
-    let n = pts.len() as f64;
-    let om = pts.iter().map(|p| p.0).sum::<f64>() / n;
-    let cm = pts.iter().map(|p| p.1).sum::<f64>() / n;
-    let soo: f64 = pts.iter().map(|p| (p.0 - om).powi(2)).sum();
-    let soc: f64 = pts.iter().map(|p| (p.0 - om) * (p.1 - cm)).sum();
-    let slope = soc / soo;
-    let ss: f64 = pts
-        .iter()
-        .map(|p| (p.1 - cm - slope * (p.0 - om)).powi(2))
-        .sum();
+/// Least-squares line t = t0 + slope·o through the (o, t) rows of a tick (at least 6).
+fn line_through(pts: &[(f64, f64)]) -> Option<TickSlant> {
+    let (o, t): (Vec<f64>, Vec<f64>) = pts.iter().copied().unzip();
+    let fit = fit_line(&o, &t, &vec![1.0; pts.len()]).ok()?;
     // Floor of 0.02 px per centre: bilinear sampling and the JPEG leave at least that.
-    let sigma = (ss / (n - 2.0)).sqrt().max(0.02);
-    TickSlant {
-        t: cm - slope * om,
-        slope,
-        u: sigma / soo.sqrt(),
-    }
+    let sigma = fit.s2.sqrt().max(0.02);
+    Some(TickSlant {
+        t: fit.intercept,
+        slope: fit.slope,
+        u: sigma / fit.sxx.sqrt(),
+    })
 }
 
 /// Whether every `modulus`-th mark stands out from the rest in `values` (a tick's length,
