@@ -84,9 +84,10 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
         Known::Pitch(_) => None,
     };
     let (channel, channel_note, cmap) = pattern_channel(&photo, forced, by_wavelength);
+    let candidates = laser_candidates(&photo, channel, &cmap);
     clock.lap("channel");
     let stretch = match args.scale.grid {
-        Some(_) => Some(grid_stretch(&photo, channel, &cmap)?),
+        Some(_) => Some(grid_stretch(&candidates, photo.width(), photo.height())?),
         None => None,
     };
     // Ruler marks and grid lines are neutral grey: luma carries them at full resolution.
@@ -97,8 +98,7 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
         stretch,
     )?;
     clock.lap("scale");
-    clock.lap("channel");
-    let found = locate_orders(&photo, channel, &cmap, &map, &inputs)?;
+    let found = locate_orders(&photo, channel, candidates, &cmap, &map, &inputs)?;
     clock.lap("spots");
     let order_spots: Vec<OrderSpot> = found
         .spots
@@ -343,13 +343,10 @@ const MAX_CROSS_COLOUR: f64 = 0.6;
 /// measured where the orders are, and its perspective along their line is the one that
 /// matters.
 fn grid_stretch(
-    photo: &Photo,
-    channel: Channel,
-    cmap: &CoarseMap,
+    blobs: &[Blob],
+    width: usize,
+    height: usize,
 ) -> Result<(Vector2<f64>, Vector2<f64>), Error> {
-    let (width, height) = (photo.width(), photo.height());
-    let mut blobs = find_blobs(cmap, 8.0, 60);
-    keep_laser_coloured(photo, channel, &mut blobs);
     let brightest = (0..blobs.len())
         .max_by(|&a, &b| blobs[a].peak.total_cmp(&blobs[b].peak))
         .ok_or_else(|| {
@@ -359,7 +356,7 @@ fn grid_stretch(
                     .into(),
             )
         })?;
-    let axis = pattern_axis(&blobs, Some(brightest), 16)?;
+    let axis = pattern_axis(blobs, Some(brightest), 16)?;
     let pts: Vec<Vector2<f64>> = axis.members.iter().map(|&i| blobs[i].centroid).collect();
     let line = crate::fit::line::tls_line(&pts, &vec![1.0; pts.len()]).map_err(|e| {
         FindError::NoPattern(format!("the pattern's spots do not lie on a line: {e}"))
@@ -400,10 +397,19 @@ fn grid_stretch(
     .into())
 }
 
-/// Finds the candidates, the pattern line and the orders, then refines the order spots.
+/// The spot candidates of the pattern channel's coarse map that are laser light.
+fn laser_candidates(photo: &Photo, channel: Channel, cmap: &CoarseMap) -> Vec<Blob> {
+    let mut blobs = find_blobs(cmap, 8.0, 60);
+    keep_laser_coloured(photo, channel, &mut blobs);
+    blobs
+}
+
+/// Locates the pattern line and the orders among the candidates, then refines the order
+/// spots.
 pub fn locate_orders(
     photo: &Photo,
     channel: Channel,
+    mut blobs: Vec<Blob>,
     cmap: &CoarseMap,
     map: &ScreenMap,
     inputs: &GratingInputs,
@@ -420,8 +426,6 @@ pub fn locate_orders(
     }
     let plane = photo.plane(channel);
     let raster: &dyn Raster = &plane;
-    let mut blobs = find_blobs(cmap, 8.0, 60);
-    keep_laser_coloured(photo, channel, &mut blobs);
     // The ruler's light strip and its marks are not spots.
     if let (ScaleMethod::Ruler, Some((a, b))) = (map.method, map.stretch_px) {
         let reach = 0.1 * (b - a).norm() + 10.0;
