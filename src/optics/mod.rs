@@ -3,6 +3,9 @@
 //! experiment's inputs, and returns results with GUM budgets.
 
 pub mod grating;
+pub mod profile;
+pub mod slit;
+pub mod two_slit;
 
 use thiserror::Error;
 
