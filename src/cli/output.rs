@@ -7,6 +7,7 @@ use crate::photo::{self, Channel, Photo};
 use crate::quantity::Dimension;
 use crate::raster::Raster;
 use crate::record::overlay::{self, Mark};
+use crate::record::plot::{self, ProfilePlot};
 use crate::record::{self, Record, RecordError};
 use crate::scale::ruler::{self, Marks, RulerClass, RulerSpec};
 use crate::scale::{ScaleMethod, ScreenMap, points};
@@ -193,10 +194,27 @@ pub fn emit(
     out: &OutputArgs,
     clock: &mut Clock,
 ) -> Result<ExitCode, Error> {
+    emit_with_plot(record, photo, photo_bytes, marks, None, out, clock)
+}
+
+/// As [`emit`], with the plot of a fitted profile in the overlay's margin (and so in the
+/// report and the archive, which carry the overlay).
+pub fn emit_with_plot(
+    record: &mut Record,
+    photo: &Photo,
+    photo_bytes: &[u8],
+    marks: &[Mark],
+    profile: Option<&ProfilePlot>,
+    out: &OutputArgs,
+    clock: &mut Clock,
+) -> Result<ExitCode, Error> {
     let wants_overlay = out.overlay.is_some() || out.report.is_some() || out.archive.is_some();
     let overlay_png = if wants_overlay {
         let (preview, factor) = photo.preview_rgb8(1600);
-        let img = overlay::render_overlay(&preview, factor, marks);
+        let mut img = overlay::render_overlay(&preview, factor, marks);
+        if let Some(profile) = profile {
+            img = plot::attach_plot(&img, profile, plot::Side::auto(&img))?;
+        }
         Some(overlay::encode_png(&img)?)
     } else {
         None

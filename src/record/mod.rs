@@ -1,7 +1,7 @@
 //! The record stage: what was measured, kept so that it can be checked later. It holds the
 //! JSON record (schema `fringegauge.record/1`, described by a JSON Schema draft 2020-12 in
-//! [`schema_json`]), the terminal and HTML reports, the overlay drawn on the photo, atomic
-//! file writes and the archive folder with its index.
+//! [`schema_json`]), the terminal and HTML reports, the overlay drawn on the photo, the plot
+//! of a fitted profile, atomic file writes and the archive folder with its index.
 //!
 //! All values are in SI base units (metres, radians, volts); screen positions are in
 //! millimetres and photo positions in pixels, as their field names say. Uncertainties are
@@ -13,6 +13,7 @@ pub mod atomic;
 pub mod html;
 mod json;
 pub mod overlay;
+pub mod plot;
 pub mod schema;
 pub mod text;
 mod timings;
@@ -28,6 +29,7 @@ pub use archive::{
 pub use atomic::write_atomic;
 pub use html::render_html;
 pub use overlay::{Mark, encode_png, render_overlay};
+pub use plot::{ProfilePlot, Side, attach_plot, render_profile, write_plot};
 pub use schema::schema_json;
 pub use text::render_text;
 pub use timings::Timings;
@@ -91,6 +93,9 @@ pub enum RecordError {
     /// The overlay image could not be encoded.
     #[error("cannot encode the overlay as PNG: {0}")]
     Encode(String),
+    /// The profile plot cannot be drawn from what it was given.
+    #[error("cannot draw the profile plot: {0}")]
+    Plot(String),
 }
 
 impl RecordError {
@@ -108,7 +113,8 @@ impl RecordError {
             | RecordError::Json { .. }
             | RecordError::NotArchive(_)
             | RecordError::Locked(_)
-            | RecordError::Encode(_) => ExitCode::BadInput,
+            | RecordError::Encode(_)
+            | RecordError::Plot(_) => ExitCode::BadInput,
         }
     }
 

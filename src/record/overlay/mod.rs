@@ -4,7 +4,7 @@
 //! on a dark outline so that it reads on bright paper and on a dark screen alike; labels
 //! are the public-domain 8×8 bitmap font of the `font8x8` crate, scaled up, on a dark box.
 
-mod paint;
+pub(crate) mod paint;
 
 use super::RecordError;
 use super::text::trim_number;

@@ -5,19 +5,19 @@ use image::{Rgb, RgbImage};
 use imageproc::drawing::draw_line_segment_mut;
 
 /// The near-black outline under every coloured stroke.
-pub(super) const OUTLINE: Rgb<u8> = Rgb([14, 16, 20]);
+pub(crate) const OUTLINE: Rgb<u8> = Rgb([14, 16, 20]);
 
 /// Sizes that follow the preview's size.
 #[derive(Clone, Copy)]
-pub(super) struct Pen {
+pub(crate) struct Pen {
     /// Stroke radius, px (0 draws a 1 px line).
-    pub(super) radius: i32,
+    pub(crate) radius: i32,
     /// Glyph scale: each font pixel becomes a `glyph`×`glyph` block.
-    pub(super) glyph: u32,
+    pub(crate) glyph: u32,
 }
 
 impl Pen {
-    pub(super) fn for_image(img: &RgbImage) -> Pen {
+    pub(crate) fn for_image(img: &RgbImage) -> Pen {
         let short = img.width().min(img.height());
         Pen {
             radius: match short {
@@ -28,17 +28,17 @@ impl Pen {
             glyph: if short >= 900 { 3 } else { 2 },
         }
     }
-    pub(super) fn text_height(self) -> i32 {
+    pub(crate) fn text_height(self) -> i32 {
         8 * self.glyph as i32
     }
-    pub(super) fn text_width(self, text: &str) -> i32 {
+    pub(crate) fn text_width(self, text: &str) -> i32 {
         8 * self.glyph as i32 * text.chars().count() as i32
     }
 }
 
 /// Draws polylines (each closed or not) of one mark: the dark outline of all of them
 /// first, then the colour on top, so that no outline cuts through the mark's own colour.
-pub(super) fn stroke(img: &mut RgbImage, paths: &[(&[[f64; 2]], bool)], pen: Pen, colour: Rgb<u8>) {
+pub(crate) fn stroke(img: &mut RgbImage, paths: &[(&[[f64; 2]], bool)], pen: Pen, colour: Rgb<u8>) {
     for (radius, c) in [(pen.radius + 1, OUTLINE), (pen.radius, colour)] {
         for (pts, closed) in paths {
             let n = pts.len();
@@ -54,7 +54,7 @@ pub(super) fn stroke(img: &mut RgbImage, paths: &[(&[[f64; 2]], bool)], pen: Pen
 
 /// A segment `radius` px thick, clipped to the image first so that far-off points cost
 /// nothing.
-fn thick_segment(img: &mut RgbImage, a: [f64; 2], b: [f64; 2], radius: i32, c: Rgb<u8>) {
+pub(crate) fn thick_segment(img: &mut RgbImage, a: [f64; 2], b: [f64; 2], radius: i32, c: Rgb<u8>) {
     let margin = radius as f64 + 2.0;
     let Some((a, b)) = clip_segment(a, b, img.width() as f64, img.height() as f64, margin) else {
         return;
@@ -116,7 +116,7 @@ fn clip_segment(
 }
 
 /// Darkens a rectangle to 35 % so that text on it reads on any photo.
-pub(super) fn shade(img: &mut RgbImage, x: i32, y: i32, w: i32, h: i32) {
+pub(crate) fn shade(img: &mut RgbImage, x: i32, y: i32, w: i32, h: i32) {
     let (iw, ih) = (img.width() as i32, img.height() as i32);
     for yy in y.max(0)..(y + h).min(ih) {
         for xx in x.max(0)..(x + w).min(iw) {
@@ -130,7 +130,7 @@ pub(super) fn shade(img: &mut RgbImage, x: i32, y: i32, w: i32, h: i32) {
 
 /// The 8×8 glyph of a character: ASCII, Latin-1 (for ±, µ, °) and Greek (θ, λ); others
 /// show as '?'.
-pub(super) fn glyph(c: char) -> [u8; 8] {
+pub(crate) fn glyph(c: char) -> [u8; 8] {
     use font8x8::legacy::{BASIC_LEGACY, GREEK_LEGACY, LATIN_LEGACY};
     let code = c as usize;
     let found = match code {
@@ -144,7 +144,7 @@ pub(super) fn glyph(c: char) -> [u8; 8] {
 
 /// Draws text with its top-left corner at (x, y); bit 0 of each glyph row is the leftmost
 /// pixel.
-pub(super) fn draw_text(
+pub(crate) fn draw_text(
     img: &mut RgbImage,
     x: i32,
     y: i32,
