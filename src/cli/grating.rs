@@ -398,7 +398,7 @@ fn grid_stretch(
 }
 
 /// The spot candidates of the pattern channel's coarse map that are laser light.
-fn laser_candidates(photo: &Photo, channel: Channel, cmap: &CoarseMap) -> Vec<Blob> {
+pub(crate) fn laser_candidates(photo: &Photo, channel: Channel, cmap: &CoarseMap) -> Vec<Blob> {
     let mut blobs = find_blobs(cmap, 8.0, 60);
     keep_laser_coloured(photo, channel, &mut blobs);
     blobs

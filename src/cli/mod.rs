@@ -2,6 +2,7 @@
 //! sequence the library's stages and write outputs; the algorithms live below.
 
 pub mod args;
+pub mod fringes;
 pub mod grating;
 pub mod inputs;
 pub mod output;
@@ -39,6 +40,12 @@ pub enum Command {
     /// Pitch of a grating from its orders (or the wavelength, given the pitch)
     #[command(after_long_help = args::LASER_CAUTION)]
     Grating(grating::GratingArgs),
+    /// Slit separation and width from the fringes of a double slit
+    #[command(name = "two-slit", after_long_help = args::LASER_CAUTION)]
+    TwoSlit(fringes::TwoSlitArgs),
+    /// Width of a slit, or with --wire a wire's diameter, from its fringes and minima
+    #[command(after_long_help = args::LASER_CAUTION)]
+    Slit(fringes::SlitArgs),
     /// Render a synthetic photo with known truth (PHOTO.truth.json beside it)
     Simulate(simulate::SimulateArgs),
     /// Simulate a grating photo, measure it, and say where the files went
@@ -53,6 +60,8 @@ pub enum Command {
 pub fn run(cli: Cli) -> Result<ExitCode, Error> {
     match cli.command {
         Command::Grating(a) => grating::run(&a),
+        Command::TwoSlit(a) => fringes::run_two_slit(&a),
+        Command::Slit(a) => fringes::run_slit(&a),
         Command::Simulate(a) => simulate::run(&a),
         Command::Demo(a) => tools::demo(&a),
         Command::Schema => {

@@ -4,6 +4,7 @@
 
 pub mod axis;
 pub mod blobs;
+pub mod fringes;
 pub mod spot;
 
 use thiserror::Error;

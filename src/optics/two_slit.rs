@@ -132,7 +132,7 @@ pub fn solve(
     monte_carlo: Option<(usize, u64)>,
 ) -> Result<TwoSlitSolution, OpticsError> {
     let distance_mm = positive(&inputs.distance, "distance")? * 1e3;
-    let lambda = positive(&inputs.wavelength, "wavelength")?;
+    positive(&inputs.wavelength, "wavelength")?;
     let (x, y) = profile.usable();
     if x.len() < 30 {
         return Err(OpticsError::Unsolvable(format!(
@@ -234,7 +234,6 @@ pub fn solve(
         }
     }
     let model_values = evaluate(&model, &fit.params, &profile.x_mm, distance_mm);
-    let _ = lambda;
     Ok(TwoSlitSolution {
         separation,
         width,
