@@ -14,7 +14,9 @@ use crate::photo::{Channel, Photo};
 use crate::quantity::{self, Dimension};
 use crate::record::overlay::Mark;
 use crate::record::plot::{ProfilePlot, write_plot};
-use crate::record::{self, Feature, Fit, FitParameter, Record, RecordError, ResultEntry, ScaleInfo};
+use crate::record::{
+    self, Feature, Fit, FitParameter, Record, RecordError, ResultEntry, ScaleInfo,
+};
 use crate::scale::ScreenMap;
 use crate::uncertainty::{self, Estimate, Input};
 use crate::{Error, ExitCode};
@@ -81,7 +83,13 @@ pub struct SlitArgs {
 pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
     let mut clock = Clock::default();
     let (mut book, wavelength, distance) = start(&args.physics, &args.output, &args.photo)?;
-    let m = measure_profile(&args.photo, &args.scale, &mut book, wavelength.value, &mut clock)?;
+    let m = measure_profile(
+        &args.photo,
+        &args.scale,
+        &mut book,
+        wavelength.value,
+        &mut clock,
+    )?;
     let inputs = TwoSlitInputs {
         wavelength,
         distance,
@@ -115,7 +123,9 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
         sol.fit.lags
     ));
     mc_note(&mut record, &sol.monte_carlo);
-    let fitted: Vec<bool> = m.profile.used.clone();
+    let fitted: Vec<bool> = (0..m.profile.x_mm.len())
+        .map(|i| m.profile.exact(i))
+        .collect();
     let caption = format!(
         "d {}  a {} (k = 2)",
         quantity::format_si(sol.separation.value, 2.0 * sol.separation.u, "m"),
@@ -142,8 +152,18 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
 pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
     let mut clock = Clock::default();
     let (mut book, wavelength, distance) = start(&args.physics, &args.output, &args.photo)?;
-    let m = measure_profile(&args.photo, &args.scale, &mut book, wavelength.value, &mut clock)?;
-    let obstacle = if args.wire { Obstacle::Wire } else { Obstacle::Slit };
+    let m = measure_profile(
+        &args.photo,
+        &args.scale,
+        &mut book,
+        wavelength.value,
+        &mut clock,
+    )?;
+    let obstacle = if args.wire {
+        Obstacle::Wire
+    } else {
+        Obstacle::Slit
+    };
     let inputs = SlitInputs {
         obstacle,
         wavelength,
@@ -178,7 +198,10 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
         ));
     }
     let (check_from, primary_from) = match obstacle {
-        Obstacle::Slit => ("the minima line x_m = x0 + L·tan(asin(mλ/a))", "the sinc² profile fit"),
+        Obstacle::Slit => (
+            "the minima line x_m = x0 + L·tan(asin(mλ/a))",
+            "the sinc² profile fit",
+        ),
         Obstacle::Wire => (
             "the sinc² profile fit beyond the first minima",
             "the minima line x_m = x0 + L·tan(asin(mλ/w)), the beam's own spot left out",
@@ -196,6 +219,9 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
     }
     record.warnings.extend(sol.warnings.iter().cloned());
     mc_note(&mut record, &sol.monte_carlo);
+    let exact_fitted: Vec<bool> = (0..sol.fitted.len())
+        .map(|i| sol.fitted[i] && m.profile.exact(i))
+        .collect();
     let markers = sol
         .minima
         .iter()
@@ -212,9 +238,13 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
         Finish {
             x0,
             model: &sol.model_values,
-            fitted: &sol.fitted,
+            fitted: &exact_fitted,
             markers,
-            title: if args.wire { "wire profile".into() } else { "slit profile".into() },
+            title: if args.wire {
+                "wire profile".into()
+            } else {
+                "slit profile".into()
+            },
             caption,
         },
         &args.physics,
@@ -348,12 +378,8 @@ fn measure_profile(
     let profile = FringeProfile {
         x_mm: mm.iter().map(|p| (p - first).dot(&dir)).collect(),
         value: track.values.clone(),
-        used: track
-            .clipped
-            .iter()
-            .zip(&track.values)
-            .map(|(c, v)| !c && v.is_finite())
-            .collect(),
+        used: track.values.iter().map(|v| v.is_finite()).collect(),
+        clipped: track.clipped.clone(),
     };
     clock.lap("profile");
     Ok(Measured {
@@ -422,9 +448,9 @@ fn base_record(kind: &str, m: &Measured, book: &InputBook) -> Record {
         m.profile.x_mm.len(),
         m.profile.used.iter().filter(|u| !**u).count()
     ));
-    record
-        .assumptions
-        .push("screen flat and perpendicular to the beam; Fraunhofer (far-field) diffraction".into());
+    record.assumptions.push(
+        "screen flat and perpendicular to the beam; Fraunhofer (far-field) diffraction".into(),
+    );
     record
         .assumptions
         .push("camera lens distortion negligible over the pattern".into());
@@ -481,10 +507,7 @@ fn budget(e: &Estimate) -> Vec<record::BudgetLine> {
         .collect()
 }
 
-fn mc_note(
-    record: &mut Record,
-    mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>,
-) {
+fn mc_note(record: &mut Record, mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>) {
     if let Some((mc, v)) = mc {
         record.assumptions.push(format!(
             "Monte Carlo (JCGM 101) check of the first result: mean {:.6e}, u {:.2e}, 95 % interval [{:.6e}, {:.6e}] m; {}",

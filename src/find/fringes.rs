@@ -73,14 +73,24 @@ pub fn fringe_band(
 }
 
 /// Second moments of the background-subtracted light over the members' regions.
-fn coarse_axis(cmap: &CoarseMap, blobs: &[Blob], members: &[usize]) -> Result<FringeBand, FindError> {
+fn coarse_axis(
+    cmap: &CoarseMap,
+    blobs: &[Blob],
+    members: &[usize],
+) -> Result<FringeBand, FindError> {
     let (bw, bh) = cmap.size;
     let b = cmap.block as f64;
     let mut inside = vec![false; bw * bh];
     for &i in members {
         let (x0, y0, x1, y1) = blobs[i].bbox;
-        let (bx0, by0) = ((x0 / cmap.block).saturating_sub(1), (y0 / cmap.block).saturating_sub(1));
-        let (bx1, by1) = ((x1 / cmap.block + 1).min(bw - 1), (y1 / cmap.block + 1).min(bh - 1));
+        let (bx0, by0) = (
+            (x0 / cmap.block).saturating_sub(1),
+            (y0 / cmap.block).saturating_sub(1),
+        );
+        let (bx1, by1) = (
+            (x1 / cmap.block + 1).min(bw - 1),
+            (y1 / cmap.block + 1).min(bh - 1),
+        );
         for by in by0..=by1 {
             for bx in bx0..=bx1 {
                 inside[by * bw + bx] = true;
@@ -94,7 +104,10 @@ fn coarse_axis(cmap: &CoarseMap, blobs: &[Blob], members: &[usize]) -> Result<Fr
         if v <= 3.0 * cmap.noise {
             continue;
         }
-        let c = Vector2::new(((i % bw) as f64 + 0.5) * b - 0.5, ((i / bw) as f64 + 0.5) * b - 0.5);
+        let c = Vector2::new(
+            ((i % bw) as f64 + 0.5) * b - 0.5,
+            ((i / bw) as f64 + 0.5) * b - 0.5,
+        );
         sw += v;
         sx += v * c.x;
         sy += v * c.y;
@@ -113,7 +126,11 @@ fn coarse_axis(cmap: &CoarseMap, blobs: &[Blob], members: &[usize]) -> Result<Fr
     }
     m /= sw;
     let eig = m.symmetric_eigen();
-    let (major, minor) = if eig.eigenvalues[0] >= eig.eigenvalues[1] { (0, 1) } else { (1, 0) };
+    let (major, minor) = if eig.eigenvalues[0] >= eig.eigenvalues[1] {
+        (0, 1)
+    } else {
+        (1, 0)
+    };
     let (l1, l2) = (eig.eigenvalues[major], eig.eigenvalues[minor].max(0.0));
     if !(l1 > 4.0 * l2.max(b * b / 12.0)) {
         return Err(FindError::NoPattern(format!(
@@ -160,7 +177,10 @@ fn refine(raster: &dyn Raster, band: &FringeBand) -> Result<FringeBand, FindErro
         if samples.iter().any(|s| s.is_none()) {
             continue;
         }
-        let v: Vec<f64> = samples.iter().map(|s| f64::from(s.unwrap_or(0.0))).collect();
+        let v: Vec<f64> = samples
+            .iter()
+            .map(|s| f64::from(s.unwrap_or(0.0)))
+            .collect();
         // Background from the outer fifth on each side.
         let edge = (n / 5).max(1);
         let mut outer: Vec<f64> = v[..edge].iter().chain(&v[n - edge..]).copied().collect();
@@ -188,8 +208,9 @@ fn refine(raster: &dyn Raster, band: &FringeBand) -> Result<FringeBand, FindErro
             "no fringe band: too few cross-sections of the pattern lie inside the photo".into(),
         ));
     }
-    let line = tls_line(&centres, &weights)
-        .map_err(|e| FindError::NoPattern(format!("the fringe band does not lie on a line: {e}")))?;
+    let line = tls_line(&centres, &weights).map_err(|e| {
+        FindError::NoPattern(format!("the fringe band does not lie on a line: {e}"))
+    })?;
     let mut direction = line.direction;
     if direction.dot(&band.direction) < 0.0 {
         direction = -direction;
@@ -219,8 +240,9 @@ pub struct FringeTrack {
     pub half_width_px: usize,
 }
 
-/// Samples the profile every pixel along the band, over its bright extent and as far again
-/// on each side (the faint outer fringes carry the most angle), inside the frame.
+/// Samples the profile every pixel along the band, over its bright extent and half as far
+/// again on each side (the faint outer fringes carry the most angle, the dark beyond them
+/// the background), inside the frame.
 pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
     let half = band.sigma_across_px.round().clamp(1.0, 40.0) as usize;
     let (lo, hi) = band.bright;
@@ -232,7 +254,7 @@ pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
             p.x >= 0.0 && p.y >= 0.0 && p.x <= w - 1.0 - 1e-9 && p.y <= h - 1.0 - 1e-9
         })
     };
-    let (mut a, mut b) = (lo - span, hi + span);
+    let (mut a, mut b) = (lo - 0.5 * span, hi + 0.5 * span);
     while a < b && !inside(a) {
         a += 1.0;
     }
@@ -265,7 +287,10 @@ pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
                 None => ok = false,
             }
             let (px, py) = (p.x.floor().max(0.0) as usize, p.y.floor().max(0.0) as usize);
-            let (qx, qy) = ((px + 1).min(raster.width() - 1), (py + 1).min(raster.height() - 1));
+            let (qx, qy) = (
+                (px + 1).min(raster.width() - 1),
+                (py + 1).min(raster.height() - 1),
+            );
             clipped |= raster.clipped(px, py)
                 || raster.clipped(qx, py)
                 || raster.clipped(px, qy)
@@ -283,7 +308,9 @@ pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
             .sum();
         track.positions_px.push(band.at(t, 0.0));
         track.values.push(mean);
-        track.std_errors.push((ss / (rows.max(2) - 1) as f64 / rows as f64).sqrt());
+        track
+            .std_errors
+            .push((ss / (rows.max(2) - 1) as f64 / rows as f64).sqrt());
         track.clipped.push(clipped);
     }
     track
@@ -315,10 +342,18 @@ mod tests {
         let blobs = find_blobs(&cmap, 8.0, 60);
         let band = fringe_band(&raster, &cmap, &blobs).unwrap();
         let want = Vector2::new(c, s);
-        assert!(band.direction.dot(&want) > (1.0 - 1e-6), "{:?}", band.direction);
+        assert!(
+            band.direction.dot(&want) > (1.0 - 1e-6),
+            "{:?}",
+            band.direction
+        );
         let off = (band.point - centre).dot(&Vector2::new(-s, c));
         assert!(off.abs() < 0.05, "axis off by {off} px");
-        assert!((band.sigma_across_px - 3.0).abs() < 0.5, "{}", band.sigma_across_px);
+        assert!(
+            (band.sigma_across_px - 3.0).abs() < 0.5,
+            "{}",
+            band.sigma_across_px
+        );
         let track = fringe_track(&raster, &band);
         assert!(track.values.len() > 300);
         assert!(track.clipped.iter().all(|c| !c));

@@ -24,20 +24,61 @@ pub struct FringeProfile {
     pub x_mm: Vec<f64>,
     /// Linear intensity of each sample (any unit).
     pub value: Vec<f64>,
-    /// Whether a sample may be fitted (false where saturated or off the screen).
+    /// Whether a sample may be fitted at all (false where it is not a measurement).
     pub used: Vec<bool>,
+    /// Whether a sample read a clipped pixel, so that its value is only a lower bound.
+    pub clipped: Vec<bool>,
 }
 
 impl FringeProfile {
-    /// The samples that may be fitted, as (x, value).
-    pub fn usable(&self) -> (Vec<f64>, Vec<f64>) {
-        self.x_mm
-            .iter()
-            .zip(&self.value)
-            .zip(&self.used)
-            .filter(|(_, u)| **u)
-            .map(|((x, v), _)| (*x, *v))
+    /// The samples to fit, those for which `keep(i)` holds among the used ones.
+    pub fn samples(&self, keep: impl Fn(usize) -> bool) -> Samples {
+        let mut s = Samples::default();
+        for i in (0..self.x_mm.len()).filter(|&i| self.used[i] && keep(i)) {
+            s.x.push(self.x_mm[i]);
+            s.y.push(self.value[i]);
+            s.lower_bound.push(self.clipped[i]);
+        }
+        s
+    }
+
+    /// Whether sample `i` is a full measurement (used and not clipped).
+    pub fn exact(&self, i: usize) -> bool {
+        self.used[i] && !self.clipped[i]
+    }
+}
+
+/// Samples for a fit. A clipped sample is censored: it only says the intensity there is at
+/// least its value, so it costs nothing while the model stays above it and pulls the model
+/// up when it falls below. Leaving clipped samples out instead would bias the fit: the
+/// samples that escape clipping near a bright fringe are the ones speckle made darker.
+#[derive(Debug, Clone, Default)]
+pub struct Samples {
+    /// Screen positions, mm.
+    pub x: Vec<f64>,
+    /// Values.
+    pub y: Vec<f64>,
+    /// Whether each value is a lower bound only.
+    pub lower_bound: Vec<bool>,
+}
+
+impl Samples {
+    /// The uncensored samples only, as (x, y).
+    pub fn exact(&self) -> (Vec<f64>, Vec<f64>) {
+        (0..self.x.len())
+            .filter(|&i| !self.lower_bound[i])
+            .map(|i| (self.x[i], self.y[i]))
             .unzip()
+    }
+
+    /// Number of samples.
+    pub fn len(&self) -> usize {
+        self.x.len()
+    }
+
+    /// Whether there are none.
+    pub fn is_empty(&self) -> bool {
+        self.x.is_empty()
     }
 }
 
@@ -60,22 +101,23 @@ pub trait IntensityModel: Sync {
 
 struct Problem<'a, M: IntensityModel> {
     model: &'a M,
-    x: &'a [f64],
-    y: &'a [f64],
+    samples: &'a Samples,
     distance_mm: f64,
     scale: f64,
 }
 
 impl<M: IntensityModel> LeastSquares for Problem<'_, M> {
     fn residual_count(&self) -> usize {
-        self.x.len()
+        self.samples.len()
     }
 
     fn residuals(&self, p: &[f64], r: &mut [f64]) -> bool {
         let l = self.distance_mm;
-        for ((ri, &x), &y) in r.iter_mut().zip(self.x).zip(self.y) {
-            let dx = x * self.scale - p[0];
-            *ri = self.model.intensity(p, dx / dx.hypot(l), dx / l) - y;
+        let s = self.samples;
+        for (i, ri) in r.iter_mut().enumerate() {
+            let dx = s.x[i] * self.scale - p[0];
+            let d = self.model.intensity(p, dx / dx.hypot(l), dx / l) - s.y[i];
+            *ri = if s.lower_bound[i] { d.min(0.0) } else { d };
         }
         true
     }
@@ -131,12 +173,11 @@ fn options() -> LmOptions {
     }
 }
 
-/// Fits `model` to the samples (x mm, value) from `start`, at `distance_mm`, with the
-/// positions multiplied by `scale` (1 for the nominal map).
+/// Fits `model` to the samples from `start`, at `distance_mm`, with the positions
+/// multiplied by `scale` (1 for the nominal map).
 pub fn fit_profile<M: IntensityModel>(
     model: &M,
-    x: &[f64],
-    y: &[f64],
+    samples: &Samples,
     distance_mm: f64,
     scale: f64,
     start: &[f64],
@@ -144,13 +185,12 @@ pub fn fit_profile<M: IntensityModel>(
 ) -> Result<ProfileFit, FitError> {
     let problem = Problem {
         model,
-        x,
-        y,
+        samples,
         distance_mm,
         scale,
     };
     let report = minimize(&problem, start, &options(), name)?;
-    let mut jac = DMatrix::zeros(x.len(), start.len());
+    let mut jac = DMatrix::zeros(samples.len(), start.len());
     problem.jacobian(&report.params, &report.residuals, &mut jac);
     let lags = correlation_lags(&report.residuals);
     let covariance = sandwich_covariance(&jac, &report.residuals, lags)
@@ -158,8 +198,8 @@ pub fn fit_profile<M: IntensityModel>(
     Ok(ProfileFit {
         params: report.params,
         covariance,
-        rms_residual: (report.cost / x.len() as f64).sqrt(),
-        points: x.len(),
+        rms_residual: (report.cost / samples.len() as f64).sqrt(),
+        points: samples.len(),
         lags,
         cost: report.cost,
     })

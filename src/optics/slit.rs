@@ -138,7 +138,7 @@ pub fn solve(
         }
     }
     let n = profile.x_mm.len();
-    if n < 30 || profile.used.iter().filter(|u| **u).count() < 30 {
+    if n < 30 || (0..n).filter(|&i| profile.exact(i)).count() < 30 {
         return Err(OpticsError::Unsolvable(
             "too few unsaturated samples in the profile to see its minima".into(),
         ));
@@ -161,13 +161,11 @@ pub fn solve(
     let fitted: Vec<bool> = (0..n)
         .map(|i| profile.used[i] && (profile.x_mm[i] - start.centre_mm).abs() >= keep_out_mm)
         .collect();
-    let (x, y): (Vec<f64>, Vec<f64>) = (0..n)
-        .filter(|&i| fitted[i])
-        .map(|i| (profile.x_mm[i], profile.value[i]))
-        .unzip();
+    let samples = profile.samples(|i| fitted[i]);
+    let (x, y) = samples.exact();
     let model = SlitModel;
     let p0 = scan_width(&x, &y, l, start.centre_mm, q0);
-    let fit = fit_profile(&model, &x, &y, l, 1.0, &p0, "slit profile").map_err(|e| {
+    let fit = fit_profile(&model, &samples, l, 1.0, &p0, "slit profile").map_err(|e| {
         OpticsError::Unsolvable(format!("the sinc² profile could not be fitted: {e}"))
     })?;
     let mut params = fit.params.clone();
@@ -192,7 +190,7 @@ pub fn solve(
     let again_profile = |l_mm: f64, factor: f64| -> Result<Vec<f64>, OpticsError> {
         let mut s = params.clone();
         s[0] *= factor;
-        fit_profile(&model, &x, &y, l_mm, factor, &s, "slit profile")
+        fit_profile(&model, &samples, l_mm, factor, &s, "slit profile")
             .map(|f| f.params)
             .map_err(|e| OpticsError::Unsolvable(e.to_string()))
     };
@@ -455,7 +453,7 @@ fn refine_minimum(
     let idx: Vec<usize> = (0..profile.x_mm.len())
         .filter(|&i| (profile.x_mm[i] - xm).abs() <= half)
         .collect();
-    if idx.len() < 5 || idx.iter().any(|&i| !profile.used[i]) {
+    if idx.len() < 5 || idx.iter().any(|&i| !profile.exact(i)) {
         return None;
     }
     // y = c0 + c1·t + c2·t², t = x − xm, by least squares.
@@ -577,12 +575,13 @@ mod tests {
             };
             value.push(0.02 + 4.0 * env + spot + noise);
         }
-        let used = value.iter().map(|&v| v < 1.0).collect();
+        let clipped = value.iter().map(|&v| v >= 1.0).collect();
         let value = value.into_iter().map(|v: f64| v.min(1.0)).collect();
         FringeProfile {
+            used: vec![true; x.len()],
             x_mm: x,
             value,
-            used,
+            clipped,
         }
     }
 

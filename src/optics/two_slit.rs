@@ -112,16 +112,31 @@ pub struct TwoSlitSolution {
 pub const MIN_SAMPLES_PER_FRINGE: f64 = 3.0;
 
 /// Fringe period of the profile in mm from its spectrum, or None if there is no periodic
-/// signal. Saturated samples take the clip level, which keeps the fringe train whole.
+/// signal. Only the bright part is transformed (from the first to the last sample above a
+/// quarter of the peak over the floor), and periods longer than a third of it are not
+/// considered, so the envelope cannot pass for the fringes. Saturated samples keep the
+/// clip level, which keeps the fringe train whole.
 pub fn spectral_period_mm(profile: &FringeProfile) -> Option<f64> {
-    let n = profile.x_mm.len();
+    let v = &profile.value;
+    let n = v.len();
     if n < 16 {
         return None;
     }
-    let step = (profile.x_mm[n - 1] - profile.x_mm[0]) / (n - 1) as f64;
+    let peak = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let mut sorted: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    sorted.sort_by(f64::total_cmp);
+    let floor = *sorted.get(sorted.len() / 20)?;
+    let level = floor + 0.25 * (peak - floor);
+    let first = v.iter().position(|&x| x > level)?;
+    let last = v.iter().rposition(|&x| x > level)?;
+    let len = last + 1 - first;
+    if len < 16 {
+        return None;
+    }
+    let step = median_step(&profile.x_mm);
     let mut est = PeriodEstimator::new();
-    let period = est.dominant_period(&profile.value, 2.0, n as f64 / 3.0)?;
-    Some(period.period * step.abs())
+    let period = est.dominant_period(&v[first..=last], 2.0, len as f64 / 3.0)?;
+    Some(period.period * step)
 }
 
 /// Solves the double slit from its profile.
@@ -133,7 +148,8 @@ pub fn solve(
 ) -> Result<TwoSlitSolution, OpticsError> {
     let distance_mm = positive(&inputs.distance, "distance")? * 1e3;
     positive(&inputs.wavelength, "wavelength")?;
-    let (x, y) = profile.usable();
+    let samples = profile.samples(|_| true);
+    let (x, y) = samples.exact();
     if x.len() < 30 {
         return Err(OpticsError::Unsolvable(format!(
             "only {} unsaturated samples in the fringe profile; expose for the fringes, not \
@@ -148,7 +164,14 @@ pub fn solve(
     let mut failure = None;
     for factor in [1.0, 2.0, 0.5] {
         let start = start_values(&x, &y, distance_mm, period_mm / factor);
-        match fit_profile(&model, &x, &y, distance_mm, 1.0, &start, "two-slit profile") {
+        match fit_profile(
+            &model,
+            &samples,
+            distance_mm,
+            1.0,
+            &start,
+            "two-slit profile",
+        ) {
             Ok(f) if plausible(&f.params) => {
                 if best.as_ref().is_none_or(|b| f.cost < b.cost) {
                     best = Some(f);
@@ -189,7 +212,7 @@ pub fn solve(
     let again = |l_mm: f64, factor: f64| -> Result<Vec<f64>, OpticsError> {
         let mut start = fit.params.clone();
         start[0] *= factor;
-        fit_profile(&model, &x, &y, l_mm, factor, &start, "two-slit profile")
+        fit_profile(&model, &samples, l_mm, factor, &start, "two-slit profile")
             .map(|f| f.params)
             .map_err(|e| OpticsError::Unsolvable(e.to_string()))
     };
@@ -399,6 +422,7 @@ mod tests {
             .collect();
         let profile = FringeProfile {
             used: vec![true; x.len()],
+            clipped: vec![false; x.len()],
             x_mm: x,
             value,
         };

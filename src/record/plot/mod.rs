@@ -295,7 +295,7 @@ impl Plan {
             .iter()
             .any(|s| !s.used && s.measured.is_finite())
         {
-            entries.push(("left out", LEFT_OUT, swatch));
+            entries.push(("clipped or left out", LEFT_OUT, swatch));
         }
         entries.push(("model", MODEL, Swatch::Line(model_radius)));
         if data.samples.is_empty() {
