@@ -37,6 +37,14 @@ pub enum FitError {
         /// What happened.
         reason: String,
     },
+    /// Bounds that are not a valid interval, or a start value outside its bounds.
+    #[error("{model}: {reason}")]
+    Bounds {
+        /// The model being fitted.
+        model: &'static str,
+        /// What is wrong, naming the parameter.
+        reason: String,
+    },
     /// The residuals or parameters became NaN or infinite.
     #[error("{model}: non-finite values during the fit")]
     NonFinite {
