@@ -212,9 +212,10 @@ impl<'a> Frame<'a> {
             let r2 = (xf - cx).powi(2) + (yf - cy).powi(2);
             let vignette = (1.0 - self.room.vignetting * r2 / r2_corner) as f32;
             let gain = self.laser_gain as f32;
+            let shade = self.clutter.room_shade(xf, yf);
             let mut rgb = [0.0f32; 3];
             for (((o, a), l), c) in rgb.iter_mut().zip(ambient).zip(laser).zip(self.laser_rgb) {
-                *o = vignette * (a + gain * c * l) / n_sub;
+                *o = vignette * (shade * a + gain * c * l) / n_sub;
             }
             self.clutter.apply(xf, yf, &mut rgb, vignette);
             px.copy_from_slice(&rgb);
