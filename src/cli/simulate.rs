@@ -111,6 +111,10 @@ pub struct SimulateArgs {
     #[arg(long = "no-ruler")]
     pub no_ruler: bool,
 
+    /// Length of the ruler's scale, centred under the pattern
+    #[arg(long = "ruler-length", value_name = "LENGTH", default_value = "200mm")]
+    pub ruler_length: String,
+
     /// Add a table with objects, a window reflection, a glint and stray light
     #[arg(long)]
     pub clutter: bool,
@@ -230,6 +234,8 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
     }
     if a.no_ruler {
         scene.ruler = None;
+    } else if let Some(r) = scene.ruler.as_mut() {
+        r.length_mm = length(&a.ruler_length, "--ruler-length")? * 1e3;
     }
     if a.clutter {
         scene.clutter = Clutter::all();
@@ -327,6 +333,8 @@ mod tests {
             "--distance",
             "3m",
             "--pencil",
+            "--ruler-length",
+            "12cm",
             "--bloom",
             "1",
             "--flare",
@@ -343,6 +351,7 @@ mod tests {
         assert!((setup.distance_m - 3.0).abs() < 1e-12);
         assert!((setup.wavelength_m - 532e-9).abs() < 1e-18);
         assert!(scene.clutter.pencil && !scene.clutter.shadow);
+        assert!((scene.ruler.unwrap().length_mm - 120.0).abs() < 1e-9);
         assert!((camera.yaw_rad - 6f64.to_radians()).abs() < 1e-12);
         assert_eq!(effects.bloom, 1.0);
         assert_eq!(effects.flare, 2.0);
@@ -367,7 +376,7 @@ mod tests {
 
     #[test]
     fn a_bad_length_is_an_error() {
-        let a = parse(&["wire", "--out", "x.jpg", "--diameter", "-1mm"]);
+        let a = parse(&["wire", "--out", "x.jpg", "--diameter", "0mm"]);
         assert!(configure_aperture(&a).is_err());
     }
 }

@@ -337,9 +337,9 @@ fn noisy(v: f64, e: &Effects, rng: &mut Xoshiro256PlusPlus) -> f64 {
 /// way, by the seed.
 pub(crate) fn flare_angle(pattern_dir: [f64; 2], seed: u64) -> f64 {
     let base = pattern_dir[1].atan2(pattern_dir[0]);
-    let u = unit_hash(seed, 0x666c_6172_65, 1);
+    let u = unit_hash(seed, 0x0066_6c61_7265, 1);
     let turn = (60.0 + 20.0 * u).to_radians();
-    if unit_hash(seed, 0x666c_6172_65, 2) < 0.5 {
+    if unit_hash(seed, 0x0066_6c61_7265, 2) < 0.5 {
         base + turn
     } else {
         base - turn
@@ -421,31 +421,63 @@ fn exp_smooth(data: &mut [f32], start: usize, n: usize, stride: usize, length: f
     }
 }
 
+/// [`exp_smooth`] down every column of a `width`-wide plane, a row at a time (so memory is
+/// read in order); returns the smoothed copy.
+fn exp_smooth_columns(plane: &[f32], width: usize, length: f64) -> Vec<f32> {
+    let a = (-1.0 / length.max(0.1)).exp() as f32;
+    let norm = (1.0 - a) / (1.0 + a);
+    let mut out = plane.to_vec();
+    let height = plane.len() / width.max(1);
+    for y in 1..height {
+        let (done, rest) = out.split_at_mut(y * width);
+        let prev = &done[(y - 1) * width..];
+        for (o, p) in rest[..width].iter_mut().zip(prev) {
+            *o += a * p;
+        }
+    }
+    let mut back = vec![0.0f32; width];
+    for y in (0..height).rev() {
+        let row = &mut out[y * width..(y + 1) * width];
+        let orig = &plane[y * width..(y + 1) * width];
+        for ((o, b), x) in row.iter_mut().zip(back.iter_mut()).zip(orig) {
+            *o = norm * (*o + a * *b);
+            *b = x + a * *b;
+        }
+    }
+    out
+}
+
 /// Blooming after the PSF: the charge above saturation, compressed logarithmically (the
 /// sensor's anti-blooming drain takes most of it), spills along the columns over 2 % of the
-/// height and glows around the saturated area over 0.4 % of the width.
+/// height and glows around the saturated area over 0.4 % of the width. One channel at a
+/// time, to keep memory low.
 pub(crate) fn bloom(data: &mut [f32], width: usize, height: usize, strength: f64) {
-    let mut excess: Vec<f32> = data.iter().map(|&v| (v - 1.0).max(0.0).ln_1p()).collect();
-    if excess.iter().all(|&e| e == 0.0) {
-        return;
-    }
-    let mut smear = excess.clone();
-    let stride = width * 3;
+    let s = strength as f32;
     let column_len = 0.02 * height as f64;
     let glow_len = 0.004 * width as f64;
-    for x in 0..width * 3 {
-        exp_smooth(&mut smear, x, height, stride, column_len);
-        exp_smooth(&mut excess, x, height, stride, glow_len);
-    }
-    excess.par_chunks_mut(stride).for_each(|row| {
-        for c in 0..3 {
-            exp_smooth(row, c, width, 3, glow_len);
+    for c in 0..3 {
+        let excess: Vec<f32> = data
+            .iter()
+            .skip(c)
+            .step_by(3)
+            .map(|&v| (v - 1.0).max(0.0).ln_1p())
+            .collect();
+        if excess.iter().all(|&e| e == 0.0) {
+            continue;
         }
-    });
-    let s = strength as f32;
-    for ((d, m), g) in data.iter_mut().zip(&smear).zip(&excess) {
+        let smear = exp_smooth_columns(&excess, width, column_len);
+        for (d, m) in data.iter_mut().skip(c).step_by(3).zip(&smear) {
+            *d += 0.4 * s * m;
+        }
+        drop(smear);
+        let mut glow = exp_smooth_columns(&excess, width, glow_len);
+        drop(excess);
+        glow.par_chunks_mut(width)
+            .for_each(|row| exp_smooth(row, 0, width, 1, glow_len));
         // The spread charge, scaled so a broad saturated patch gains about `strength`.
-        *d += s * (0.4 * m + 0.6 * g);
+        for (d, g) in data.iter_mut().skip(c).step_by(3).zip(&glow) {
+            *d += 0.6 * s * g;
+        }
     }
 }
 
@@ -563,6 +595,14 @@ mod tests {
         assert!((v[190] - v[210]).abs() < 1e-7);
         // A two-sided exponential kernel exp(−|i|/ℓ): ten samples away it is e⁻¹ of the peak.
         assert!((v[210] / v[200] - (-1.0f32).exp()).abs() < 1e-4);
+        // Down the columns of a plane, the same filter.
+        let mut plane = vec![0.0f32; 3 * n];
+        plane[200 * 3 + 1] = 1.0;
+        let cols = exp_smooth_columns(&plane, 3, 10.0);
+        for y in 0..n {
+            assert!((cols[y * 3 + 1] - v[y]).abs() < 1e-6);
+            assert_eq!(cols[y * 3], 0.0);
+        }
     }
 
     #[test]
