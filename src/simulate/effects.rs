@@ -31,9 +31,11 @@ pub struct Effects {
     pub overexposure: f64,
     /// Blooming: how strongly charge above saturation spills along the sensor's columns and
     /// glows around the saturated area (0: none, 1: strong).
+    #[serde(default)]
     pub bloom: f64,
     /// A lens-flare streak (a smudge on the lens) through the brightest light, its peak
     /// relative to saturation (0: none).
+    #[serde(default)]
     pub flare: f64,
 }
 
