@@ -156,8 +156,16 @@ fn dark_fringes_in_the_photo_are_where_the_truth_says() {
         ..Effects::clean()
     };
     let cam = small_fringe_camera();
-    let on = fringe_photo::render(&setup, &Scene::default(), &cam, &fx, 3, true).unwrap();
-    let off = fringe_photo::render(&setup, &Scene::default(), &cam, &fx, 3, false).unwrap();
+    // Dim room light, so that paper plus fringe stays below saturation.
+    let scene = Scene {
+        room_light: RoomLight {
+            level: 0.1,
+            ..RoomLight::default()
+        },
+        ..Scene::default()
+    };
+    let on = fringe_photo::render(&setup, &scene, &cam, &fx, 3, true).unwrap();
+    let off = fringe_photo::render(&setup, &scene, &cam, &fx, 3, false).unwrap();
     let (a, b) = (luminance(&on.image), luminance(&off.image));
     let w = on.image.width() as usize;
     let diff: Vec<f64> = a.iter().zip(&b).map(|(p, q)| p - q).collect();
@@ -187,6 +195,18 @@ fn dark_fringes_in_the_photo_are_where_the_truth_says() {
         }
     }
     assert!(px_per_mm > 3.0);
+    // The exposure puts the central fringe's peak (red, 650 nm) at 0.8 of saturation on
+    // white paper, vignetting and the paper's grain aside.
+    let red = |img: &image::RgbImage, p: [f64; 2]| {
+        decode(img.get_pixel(p[0].round() as u32, p[1].round() as u32).0[0])
+    };
+    let centre = t.fringes.maxima.iter().find(|m| m.index == 0).unwrap();
+    let c = centre.px.unwrap();
+    let peak = (-3..=3)
+        .flat_map(|dy| (-3..=3).map(move |dx| [c[0] + dx as f64, c[1] + dy as f64]))
+        .map(|p| red(&on.image, p) - red(&off.image, p))
+        .fold(0.0, f64::max);
+    assert!((peak - 0.8).abs() < 0.1, "central peak {peak}");
     assert_eq!(t.kind, "slit");
     assert_eq!(t.inputs.width_m, Some(0.1e-3));
     assert!(t.fringes.mean_period_mm.is_none());
@@ -259,4 +279,41 @@ fn bad_aperture_inputs_are_errors() {
             ..
         })
     ));
+}
+
+#[test]
+fn wire_photo_saturates_the_beam_and_keeps_the_fringes_in_frame() {
+    let cam = CameraSpec {
+        width_px: 480,
+        height_px: 320,
+        focal_px: 450.0,
+        ..small_fringe_camera()
+    };
+    let fx = Effects {
+        bloom: 0.5,
+        ..Effects::default()
+    };
+    let photo = render_aperture(&ApertureSetup::wire(), &Scene::default(), &cam, &fx, 9).unwrap();
+    let t = &photo.truth;
+    assert_eq!(t.kind, "wire");
+    assert_eq!(t.inputs.diameter_m, Some(0.127e-3));
+    assert!(t.inputs.width_m.is_none() && t.inputs.separation_m.is_none());
+    for k in [-5, -1, 1, 5] {
+        assert!(
+            t.fringes.minima.iter().any(|m| m.index == k && m.in_frame),
+            "dark fringe {k} not in frame"
+        );
+    }
+    let centre = t.fringes.maxima.iter().find(|m| m.index == 0).unwrap();
+    let p = centre.px.unwrap();
+    let px = photo
+        .image
+        .get_pixel(p[0].round() as u32, p[1].round() as u32);
+    assert_eq!(px.0[0], 255, "{px:?}");
+    // The exposure is set on the first side fringe, far dimmer than the beam: the first
+    // secondary maximum of a slit's sinc² lies at π·a·sin θ/λ = 1.4303π, the first root of
+    // tan u = u (Hecht, Optics, §10.2.1; value from memory).
+    let expected = 2500.0 * (1.4303 * 650e-9 / 0.127e-3f64).asin().tan();
+    let got = t.fringes.exposure_reference_mm[0].abs();
+    assert!((got - expected).abs() < 0.05, "{got} vs {expected}");
 }
