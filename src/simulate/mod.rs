@@ -30,6 +30,7 @@ mod farfield;
 mod fringe_photo;
 mod fringe_truth;
 mod fringes;
+mod glare;
 mod output;
 mod photo;
 mod render;

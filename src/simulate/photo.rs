@@ -6,6 +6,7 @@ use super::camera::{Camera, CameraSpec, Framing};
 use super::clutter;
 use super::effects::{self, Effects};
 use super::farfield::GratingSetup;
+use super::glare;
 use super::render::{self, DrawnSpot, Frame, Stray};
 use super::scene::{Scene, Surface};
 use super::screen::Screen;
@@ -153,8 +154,8 @@ pub(crate) fn render_bench(
     let mut linear = frame.render(laser_on);
     let flare = if laser_on && effects.flare > 0.0 {
         keep.pattern_px_in_frame(w, h).map(|p| {
-            let angle = effects::flare_angle(keep.pattern_dir, seed);
-            effects::add_flare(
+            let angle = glare::flare_angle(keep.pattern_dir, seed);
+            glare::add_flare(
                 &mut linear,
                 w as usize,
                 h as usize,
@@ -170,7 +171,7 @@ pub(crate) fn render_bench(
     };
     effects::blur(&mut linear, w as usize, h as usize, 3, effects.blur_px);
     if effects.bloom > 0.0 {
-        effects::bloom(&mut linear, w as usize, h as usize, effects.bloom);
+        glare::bloom(&mut linear, w as usize, h as usize, effects.bloom);
     }
     let clutter = frame.clutter;
     Ok(Rendered {
