@@ -55,12 +55,25 @@ struct Glint {
     peak: f32,
 }
 
+/// A soft shadow edge: the side where `normal` points is shaded.
+#[derive(Debug, Clone)]
+pub(crate) struct Shade {
+    /// A point on the edge and the unit normal into the shadow, px.
+    pub point: [f64; 2],
+    pub normal: [f64; 2],
+    /// Width of the penumbra, px.
+    pub soft_px: f64,
+    /// Fraction of the room light left in the shadow.
+    pub depth: f32,
+}
+
 /// Where the distractors are, in pixels.
 #[derive(Debug, Clone, Default)]
 pub(crate) struct ClutterLayout {
     table: Option<Table>,
     window: Option<Window>,
     glint: Option<Glint>,
+    pub shade: Option<Shade>,
     room_level: f32,
     seed: u64,
 }
@@ -72,6 +85,14 @@ pub(crate) struct Keep {
     pub pattern_dir: [f64; 2],
     /// Lowest image row used by the pattern, ruler and sheet.
     pub lowest_px: f64,
+}
+
+impl Keep {
+    /// The pattern's centre if it lies on the sensor.
+    pub fn pattern_px_in_frame(&self, width: u32, height: u32) -> Option<[f64; 2]> {
+        let [x, y] = self.pattern_px;
+        (x >= 0.0 && y >= 0.0 && x < width as f64 && y < height as f64).then_some([x, y])
+    }
 }
 
 impl ClutterLayout {
@@ -172,7 +193,31 @@ impl ClutterLayout {
                 });
             }
         }
+        if clutter.shadow {
+            // An edge near the middle, tilted up to 15°, shading one side (the shadow of
+            // something between the room lamp and the screen).
+            let tilt: f64 = rng.random_range(-15f64..15.0).to_radians();
+            let x = w * rng.random_range(0.42..0.58);
+            let sign = if rng.random_bool(0.5) { 1.0 } else { -1.0 };
+            out.shade = Some(Shade {
+                point: [x, 0.5 * h],
+                normal: [sign * tilt.cos(), sign * tilt.sin()],
+                soft_px: 0.03 * w,
+                depth: 0.12,
+            });
+        }
         out
+    }
+
+    /// Factor on the room light at a pixel (1 outside any shadow).
+    pub fn room_shade(&self, x: f64, y: f64) -> f32 {
+        let Some(s) = &self.shade else {
+            return 1.0;
+        };
+        let d = (x - s.point[0]) * s.normal[0] + (y - s.point[1]) * s.normal[1];
+        let t = (0.5 + d / s.soft_px).clamp(0.0, 1.0) as f32;
+        let t = t * t * (3.0 - 2.0 * t);
+        1.0 - (1.0 - s.depth) * t
     }
 
     /// Composites the distractors over a pixel's linear RGB.

@@ -29,6 +29,14 @@ pub struct Effects {
     /// in the image relative to saturation, after pixel area and blur but before speckle
     /// and noise: 3 means strongly saturated.
     pub overexposure: f64,
+    /// Blooming: how strongly charge above saturation spills along the sensor's columns and
+    /// glows around the saturated area (0: none, 1: strong).
+    #[serde(default)]
+    pub bloom: f64,
+    /// A lens-flare streak (a smudge on the lens) through the brightest light, its peak
+    /// relative to saturation (0: none).
+    #[serde(default)]
+    pub flare: f64,
 }
 
 impl Default for Effects {
@@ -42,6 +50,8 @@ impl Default for Effects {
             full_well_e: 6000.0,
             read_noise_e: 3.0,
             overexposure: 3.0,
+            bloom: 0.0,
+            flare: 0.0,
         }
     }
 }
@@ -96,6 +106,18 @@ impl Effects {
                 self.overexposure,
                 self.overexposure > 0.0 && self.overexposure <= 1e4,
                 "a positive factor up to 1e4",
+            ),
+            (
+                "bloom",
+                self.bloom,
+                (0.0..=4.0).contains(&self.bloom),
+                "a strength from 0 to 4",
+            ),
+            (
+                "flare",
+                self.flare,
+                (0.0..=20.0).contains(&self.flare),
+                "a streak peak from 0 to 20 times saturation",
             ),
         ];
         for (name, value, ok, expected) in checks {

@@ -1,7 +1,7 @@
 //! Synthetic photos with known truth, for tests, benches and the demo.
 //!
 //! The simulator shares no formula with [`crate::optics`]: the far field is the Fourier
-//! transform of the grating's sampled transmission under a Gaussian beam (the angular
+//! transform of the grating's (or slits', or wire's) sampled transmission under a Gaussian beam (the angular
 //! spectrum of plane waves, Goodman, *Introduction to Fourier Optics*, ch. 3), every plane
 //! wave is a ray intersected with the screen plane in 3-D, the photo is a pinhole camera's
 //! view through the plane's homography (Hartley & Zisserman, *Multiple View Geometry*, §8.1),
@@ -22,10 +22,15 @@
 //! # Ok::<(), SimError>(())
 //! ```
 
+mod aperture;
 mod camera;
 mod clutter;
 mod effects;
 mod farfield;
+mod fringe_photo;
+mod fringe_truth;
+mod fringes;
+mod glare;
 mod output;
 mod photo;
 mod render;
@@ -37,9 +42,11 @@ mod truth;
 #[cfg(test)]
 mod tests;
 
+pub use aperture::{Aperture, ApertureSetup};
 pub use camera::{Camera, CameraSpec, Framing};
 pub use effects::Effects;
 pub use farfield::{GratingProfile, GratingSetup};
+pub use fringe_truth::{ApertureInputs, ApertureTruth, FringePoint, FringeTruth};
 pub use output::truth_path;
 pub use scene::{Clutter, GraphPaper, RoomLight, Ruler, Scene, Surface};
 pub use truth::{
@@ -104,13 +111,13 @@ pub enum SimError {
     Json(serde_json::Error),
 }
 
-/// A rendered photo and its truth.
+/// A rendered photo and its truth ([`Truth`] for a grating, [`ApertureTruth`] for fringes).
 #[derive(Debug, Clone)]
-pub struct SimPhoto {
+pub struct SimPhoto<T = Truth> {
     /// The 8-bit sRGB image.
     pub image: image::RgbImage,
     /// What is known about it.
-    pub truth: Truth,
+    pub truth: T,
 }
 
 /// Renders a photo of a grating's pattern on a screen. `seed` drives every random choice
@@ -123,4 +130,29 @@ pub fn render_grating(
     seed: u64,
 ) -> Result<SimPhoto, SimError> {
     render(setup, scene, camera, effects, seed, true)
+}
+
+/// Renders a photo of the fringes of two slits, a slit or a wire on a screen perpendicular
+/// to the beam. `seed` drives every random choice, so equal inputs give equal photos.
+///
+/// ```no_run
+/// use fringegauge::simulate::*;
+/// let photo = render_aperture(
+///     &ApertureSetup::two_slit(),
+///     &Scene::default(),
+///     &CameraSpec::default(),
+///     &Effects::default(),
+///     7,
+/// )?;
+/// photo.write(std::path::Path::new("young.jpg"), 92, false)?;
+/// # Ok::<(), SimError>(())
+/// ```
+pub fn render_aperture(
+    setup: &ApertureSetup,
+    scene: &Scene,
+    camera: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+) -> Result<SimPhoto<ApertureTruth>, SimError> {
+    fringe_photo::render(setup, scene, camera, effects, seed, true)
 }

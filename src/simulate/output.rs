@@ -86,7 +86,7 @@ fn write_atomic(
     result
 }
 
-impl SimPhoto {
+impl<T: serde::Serialize> SimPhoto<T> {
     /// Saves the photo (JPEG at `jpeg_quality`, 1–100, or PNG, by extension) and its truth
     /// beside it. Refuses to overwrite either file unless `force`.
     pub fn write(&self, path: &Path, jpeg_quality: u8, force: bool) -> Result<(), SimError> {

@@ -1,10 +1,12 @@
-//! The pipeline behind [`super::render_grating`]: far field, landing on the screen, camera
-//! placement, exposure, the pixel loop, the camera's effects and the truth.
+//! The pipeline behind [`super::render_grating`] and [`super::render_aperture`]: far field,
+//! landing on the screen, camera placement, exposure, the pixel loop, the camera's effects
+//! and the truth.
 
 use super::camera::{Camera, CameraSpec, Framing};
 use super::clutter;
 use super::effects::{self, Effects};
 use super::farfield::GratingSetup;
+use super::glare;
 use super::render::{self, DrawnSpot, Frame, Stray};
 use super::scene::{Scene, Surface};
 use super::screen::Screen;
@@ -21,7 +23,167 @@ pub(crate) struct LinearPhoto {
     pub truth: Truth,
 }
 
-/// Renders in linear light with the laser on or off.
+/// The light source of a photo, whatever made it: the spots on the screen and what the
+/// camera placement and exposure need to know about them.
+pub(crate) struct Bench<'a> {
+    pub spots: &'a [OrderSpot],
+    pub wavelength_m: f64,
+    /// Beam hole in the screen (reflection), centre and radius, mm.
+    pub hole: Option<([f64; 2], f64)>,
+    /// Where the pattern's centre is on the screen (X), mm: the ruler goes under it.
+    pub zero_x: f64,
+    /// Points of the pattern that automatic framing keeps in view, mm.
+    pub frame_points: Vec<[f64; 2]>,
+    /// What the exposure is set on.
+    pub reference: Option<Reference>,
+    /// Half-length along X of the pattern's useful part, mm (for pencil marks).
+    pub reach_mm: f64,
+}
+
+/// The light the exposure is set on.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Reference {
+    pub centre_mm: [f64; 2],
+    /// Peak irradiance, power fraction per mm².
+    pub peak_per_mm2: f64,
+    /// Its width along X and Y, mm (lowers the peak in the image through pixels and blur).
+    pub sigma_mm: [f64; 2],
+}
+
+impl Reference {
+    fn of(s: &OrderSpot) -> Self {
+        Reference {
+            centre_mm: s.centroid_mm,
+            peak_per_mm2: s.peak_per_mm2,
+            sigma_mm: [s.sigma_x_mm, s.sigma_y_mm],
+        }
+    }
+}
+
+/// A bench rendered in linear light, with what its truth needs.
+pub(crate) struct Rendered {
+    pub rgb: Vec<f32>,
+    pub camera: Camera,
+    pub screen: Screen,
+    pub clutter: clutter::ClutterLayout,
+    /// Lens flare streak through the reference, if drawn: image point and angle.
+    pub flare: Option<([f64; 2], f64)>,
+}
+
+/// Places the camera, sets the exposure and renders `bench` in linear light.
+pub(crate) fn render_bench(
+    bench: &Bench,
+    scene: &Scene,
+    camera_spec: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+    laser_on: bool,
+) -> Result<Rendered, SimError> {
+    let mut screen = Screen::new(*scene, bench.zero_x, bench.hole, seed);
+    if scene.clutter.pencil {
+        screen.add_pencil_marks(bench.zero_x, bench.reach_mm, seed);
+    }
+    let camera = place_camera(camera_spec, bench, &screen)?;
+    if let Surface::Sheet { .. } = scene.surface {
+        let corners = sheet_corners(scene);
+        let seen = (0..=8).any(|i| {
+            (0..=8).any(|j| {
+                let (a, b) = (i as f64 / 8.0, j as f64 / 8.0);
+                let p = [
+                    corners[0][0]
+                        + a * (corners[1][0] - corners[0][0])
+                        + b * (corners[3][0] - corners[0][0]),
+                    corners[0][1]
+                        + a * (corners[1][1] - corners[0][1])
+                        + b * (corners[3][1] - corners[0][1]),
+                ];
+                camera.project(p).is_some_and(|q| camera.in_frame(q))
+            })
+        });
+        if !seen {
+            return Err(SimError::CameraSeesNoScreen(
+                "the paper sheet is outside the frame; aim the camera at it".into(),
+            ));
+        }
+    }
+
+    let reference = bench.reference;
+    let laser_gain = reference.map_or(0.0, |r| {
+        let spread = image_peak_factor(&camera, &r, effects.blur_px);
+        effects.overexposure / (r.peak_per_mm2 * Screen::paper_albedo() * spread)
+    });
+
+    let spots: Vec<DrawnSpot> = bench
+        .spots
+        .iter()
+        .filter_map(|s| {
+            render::spot_rect(&camera, s).map(|rect| DrawnSpot {
+                spot: s,
+                rect,
+                speckle: None,
+            })
+        })
+        .collect();
+    let (w, h) = (camera_spec.width_px, camera_spec.height_px);
+    let pattern_mm = reference.map_or([bench.zero_x, 0.0], |r| r.centre_mm);
+    let keep = clutter_keep(&camera, &screen, &spots, pattern_mm);
+    let mut frame = Frame {
+        camera: &camera,
+        screen: &screen,
+        spots,
+        stray: (scene.clutter.stray_light)
+            .then_some(())
+            .and(reference)
+            .map(|r| Stray {
+                centre_mm: r.centre_mm,
+                peak_per_mm2: r.peak_per_mm2,
+            }),
+        laser_rgb: effects::laser_rgb(bench.wavelength_m),
+        laser_gain,
+        room: scene.room_light,
+        clutter: clutter::ClutterLayout::new(
+            scene.clutter,
+            w,
+            h,
+            &keep,
+            scene.room_light.level,
+            seed,
+        ),
+    };
+    frame.add_speckle(effects, seed);
+    let mut linear = frame.render(laser_on);
+    let flare = if laser_on && effects.flare > 0.0 {
+        keep.pattern_px_in_frame(w, h).map(|p| {
+            let angle = glare::flare_angle(keep.pattern_dir, seed);
+            glare::add_flare(
+                &mut linear,
+                w as usize,
+                h as usize,
+                p,
+                angle,
+                effects.flare,
+                effects::laser_rgb(bench.wavelength_m),
+            );
+            (p, angle)
+        })
+    } else {
+        None
+    };
+    effects::blur(&mut linear, w as usize, h as usize, 3, effects.blur_px);
+    if effects.bloom > 0.0 {
+        glare::bloom(&mut linear, w as usize, h as usize, effects.bloom);
+    }
+    let clutter = frame.clutter;
+    Ok(Rendered {
+        rgb: linear,
+        camera,
+        screen,
+        clutter,
+        flare,
+    })
+}
+
+/// Renders a grating in linear light with the laser on or off.
 pub(crate) fn render_linear(
     setup: &GratingSetup,
     scene: &Scene,
@@ -51,30 +213,6 @@ pub(crate) fn render_linear(
         .iter()
         .find(|s| s.order == 0)
         .map_or(0.0, |s| s.centroid_mm[0]);
-    let screen = Screen::new(*scene, zero_x, hole, seed);
-    let camera = place_camera(setup, camera_spec, &light, &screen, zero_x)?;
-    if let Surface::Sheet { .. } = scene.surface {
-        let corners = sheet_corners(scene);
-        let seen = (0..=8).any(|i| {
-            (0..=8).any(|j| {
-                let (a, b) = (i as f64 / 8.0, j as f64 / 8.0);
-                let p = [
-                    corners[0][0]
-                        + a * (corners[1][0] - corners[0][0])
-                        + b * (corners[3][0] - corners[0][0]),
-                    corners[0][1]
-                        + a * (corners[1][1] - corners[0][1])
-                        + b * (corners[3][1] - corners[0][1]),
-                ];
-                camera.project(p).is_some_and(|q| camera.in_frame(q))
-            })
-        });
-        if !seen {
-            return Err(SimError::CameraSeesNoScreen(
-                "the paper sheet is outside the frame; aim the camera at it".into(),
-            ));
-        }
-    }
 
     // Exposure: the zero order, or the brightest order not lost in the hole.
     let visible: Vec<&OrderSpot> = light.spots.iter().filter(|s| !in_hole(s)).collect();
@@ -87,67 +225,38 @@ pub(crate) fn render_linear(
                 .max_by(|a, b| a.peak_per_mm2.total_cmp(&b.peak_per_mm2))
         })
         .copied();
-    let laser_gain = reference.map_or(0.0, |r| {
-        let spread = image_peak_factor(&camera, r, effects.blur_px);
-        effects.overexposure / (r.peak_per_mm2 * Screen::paper_albedo() * spread)
-    });
-
-    let spots: Vec<DrawnSpot> = light
-        .spots
+    let frame_points = grating_frame_points(setup, camera_spec, &light, zero_x);
+    let reach_mm = frame_points
         .iter()
-        .filter_map(|s| {
-            render::spot_rect(&camera, s).map(|rect| DrawnSpot {
-                spot: s,
-                rect,
-                speckle: None,
-            })
-        })
-        .collect();
-    let (w, h) = (camera_spec.width_px, camera_spec.height_px);
-    let pattern_mm = reference.map_or([zero_x, 0.0], |r| r.centroid_mm);
-    let keep = clutter_keep(&camera, &screen, &spots, pattern_mm);
-    let mut frame = Frame {
-        camera: &camera,
-        screen: &screen,
-        spots,
-        stray: (scene.clutter.stray_light)
-            .then_some(())
-            .and(reference)
-            .map(|r| Stray {
-                centre_mm: r.centroid_mm,
-                peak_per_mm2: r.peak_per_mm2,
-            }),
-        laser_rgb: effects::laser_rgb(setup.wavelength_m),
-        laser_gain,
-        room: scene.room_light,
-        clutter: clutter::ClutterLayout::new(
-            scene.clutter,
-            w,
-            h,
-            &keep,
-            scene.room_light.level,
-            seed,
-        ),
+        .map(|p| (p[0] - zero_x).abs())
+        .fold(30.0, f64::max);
+    let bench = Bench {
+        spots: &light.spots,
+        wavelength_m: setup.wavelength_m,
+        hole,
+        zero_x,
+        frame_points,
+        reference: reference.map(Reference::of),
+        reach_mm,
     };
-    frame.add_speckle(effects, seed);
-    let mut linear = frame.render(laser_on);
-    effects::blur(&mut linear, w as usize, h as usize, 3, effects.blur_px);
-
-    let truth = truth::build(TruthParts {
+    let r = render_bench(&bench, scene, camera_spec, effects, seed, laser_on)?;
+    let mut truth = truth::build(TruthParts {
         setup,
         scene,
         effects,
         seed,
-        camera: &camera,
-        screen: &screen,
+        camera: &r.camera,
+        screen: &r.screen,
         light: &light,
         spectrum: &spectrum,
         in_hole: &in_hole,
         reference: reference.map(|r| r.order),
-        clutter: &frame.clutter,
+        clutter: &r.clutter,
     });
+    truth.notes.extend(truth::effect_notes(&r));
+    let (w, h) = (camera_spec.width_px, camera_spec.height_px);
     Ok(LinearPhoto {
-        rgb: linear,
+        rgb: r.rgb,
         width: w,
         height: h,
         truth,
@@ -176,33 +285,42 @@ pub(crate) fn render(
     })
 }
 
-fn place_camera(
+/// The grating's orders up to the framing's highest order (within 1.5 distances of the
+/// zero order), or the lowest order if none is.
+fn grating_frame_points(
     setup: &GratingSetup,
     spec: &CameraSpec,
     light: &ScreenLight,
-    screen: &Screen,
     zero_x: f64,
-) -> Result<Camera, SimError> {
+) -> Vec<[f64; 2]> {
+    let Framing::Auto { max_order, .. } = spec.framing else {
+        return Vec::new();
+    };
+    let reach = 1.5 * setup.distance_m * 1e3;
+    let mut pts: Vec<[f64; 2]> = Vec::new();
+    for s in &light.spots {
+        let [x, y] = s.centroid_mm;
+        if s.order.unsigned_abs() <= max_order && (x - zero_x).abs() <= reach {
+            pts.push([x, y - 3.0 * s.sigma_y_mm]);
+            pts.push([x, y + 3.0 * s.sigma_y_mm]);
+        }
+    }
+    if pts.is_empty() {
+        if let Some(s) = light.spots.iter().min_by_key(|s| s.order.unsigned_abs()) {
+            pts.push(s.centroid_mm);
+        }
+    }
+    pts
+}
+
+fn place_camera(spec: &CameraSpec, bench: &Bench, screen: &Screen) -> Result<Camera, SimError> {
     match spec.framing {
         Framing::Fixed {
             aim_mm,
             distance_mm,
         } => Camera::new(*spec, aim_mm, distance_mm),
-        Framing::Auto { max_order, margin } => {
-            let reach = 1.5 * setup.distance_m * 1e3;
-            let mut pts: Vec<[f64; 2]> = Vec::new();
-            for s in &light.spots {
-                let [x, y] = s.centroid_mm;
-                if s.order.unsigned_abs() <= max_order && (x - zero_x).abs() <= reach {
-                    pts.push([x, y - 3.0 * s.sigma_y_mm]);
-                    pts.push([x, y + 3.0 * s.sigma_y_mm]);
-                }
-            }
-            if pts.is_empty() {
-                if let Some(s) = light.spots.iter().min_by_key(|s| s.order.unsigned_abs()) {
-                    pts.push(s.centroid_mm);
-                }
-            }
+        Framing::Auto { margin, .. } => {
+            let mut pts = bench.frame_points.clone();
             if let Some(r) = &screen.ruler {
                 pts.extend(r.corners_mm());
             }
@@ -230,16 +348,16 @@ fn place_camera(
 
 /// How much pixel area and blur lower a spot's peak in the image: a Gaussian spot of σ_px
 /// becomes one of √(σ_px² + 1/12 + σ_blur²) (the pixel box's variance is 1/12).
-fn image_peak_factor(camera: &Camera, spot: &OrderSpot, blur_px: f64) -> f64 {
+fn image_peak_factor(camera: &Camera, spot: &Reference, blur_px: f64) -> f64 {
     let axis = |sigma_mm: f64, dir: [f64; 2]| {
         camera
-            .mm_per_px_along(spot.centroid_mm, dir)
+            .mm_per_px_along(spot.centre_mm, dir)
             .map_or(1.0, |mm_per_px| {
                 let s2 = (sigma_mm / mm_per_px).powi(2);
                 (s2 / (s2 + 1.0 / 12.0 + blur_px * blur_px)).sqrt()
             })
     };
-    axis(spot.sigma_x_mm, [1.0, 0.0]) * axis(spot.sigma_y_mm, [0.0, 1.0])
+    axis(spot.sigma_mm[0], [1.0, 0.0]) * axis(spot.sigma_mm[1], [0.0, 1.0])
 }
 
 pub(crate) fn sheet_corners(scene: &Scene) -> [[f64; 2]; 4] {

@@ -60,8 +60,21 @@ pub(crate) struct Frame<'a> {
 
 /// Pixel rectangle that holds the spot's light, or `None` if it misses the frame.
 pub(crate) fn spot_rect(camera: &Camera, spot: &OrderSpot) -> Option<[usize; 4]> {
-    let (x_lo, x_hi) = spot.x_range_mm();
+    let (mut x_lo, mut x_hi) = spot.x_range_mm();
     let yr = spot.y_reach_mm();
+    // A long fringe train may reach behind the camera: keep the part in front of it (the
+    // rest cannot be seen), halving the overhang until both band corners project.
+    let c = spot.centroid_mm[0];
+    let in_front = |x: f64| camera.project([x, -yr]).is_some() && camera.project([x, yr]).is_some();
+    if in_front(c) {
+        for end in [&mut x_lo, &mut x_hi] {
+            let mut guard = 0;
+            while !in_front(*end) && guard < 80 {
+                *end = c + 0.5 * (*end - c);
+                guard += 1;
+            }
+        }
+    }
     let (w, h) = (camera.spec.width_px as f64, camera.spec.height_px as f64);
     let corners = [[x_lo, -yr], [x_hi, -yr], [x_lo, yr], [x_hi, yr]];
     let projected: Option<Vec<[f64; 2]>> = corners.iter().map(|&c| camera.project(c)).collect();
@@ -212,9 +225,10 @@ impl<'a> Frame<'a> {
             let r2 = (xf - cx).powi(2) + (yf - cy).powi(2);
             let vignette = (1.0 - self.room.vignetting * r2 / r2_corner) as f32;
             let gain = self.laser_gain as f32;
+            let shade = self.clutter.room_shade(xf, yf);
             let mut rgb = [0.0f32; 3];
             for (((o, a), l), c) in rgb.iter_mut().zip(ambient).zip(laser).zip(self.laser_rgb) {
-                *o = vignette * (a + gain * c * l) / n_sub;
+                *o = vignette * (shade * a + gain * c * l) / n_sub;
             }
             self.clutter.apply(xf, yf, &mut rgb, vignette);
             px.copy_from_slice(&rgb);

@@ -109,16 +109,35 @@ pub struct Clutter {
     pub glint: bool,
     /// Laser light scattered around the brightest spot and along the pattern.
     pub stray_light: bool,
+    /// Pencil strokes on the screen across and along the pattern (hand marks of fringes,
+    /// not where the fringes are).
+    #[serde(default)]
+    pub pencil: bool,
+    /// A soft shadow of the room light over about half of the frame (the laser light is not
+    /// shadowed).
+    #[serde(default)]
+    pub shadow: bool,
 }
 
 impl Clutter {
-    /// Every distractor on.
+    /// The table, the window, the glint and stray light.
     pub fn all() -> Self {
         Clutter {
             table: true,
             window: true,
             glint: true,
             stray_light: true,
+            pencil: false,
+            shadow: false,
+        }
+    }
+
+    /// Everything: [`Clutter::all`] plus pencil marks and a shadow over half the frame.
+    pub fn everything() -> Self {
+        Clutter {
+            pencil: true,
+            shadow: true,
+            ..Clutter::all()
         }
     }
 }

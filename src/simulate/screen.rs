@@ -63,6 +63,37 @@ pub(crate) struct Screen {
     /// (sin, cos) of the grid's and the sheet's rotations, kept out of the inner loop.
     grid_turn: (f64, f64),
     sheet_turn: (f64, f64),
+    /// Pencil strokes on the paper.
+    pub marks: Vec<Stroke>,
+}
+
+/// A pencil stroke: a straight line of graphite from `a` to `b`, mm.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Stroke {
+    pub a: [f64; 2],
+    pub b: [f64; 2],
+    pub half_width_mm: f64,
+    /// Fraction of the paper's reflectance the graphite takes away.
+    pub darkness: f32,
+}
+
+impl Stroke {
+    /// Cover of the footprint half-width `h` around (x, y) by the stroke.
+    fn cover(&self, x: f64, y: f64, h: f64) -> f64 {
+        let reach = self.half_width_mm + h;
+        if x < self.a[0].min(self.b[0]) - reach
+            || x > self.a[0].max(self.b[0]) + reach
+            || y < self.a[1].min(self.b[1]) - reach
+            || y > self.a[1].max(self.b[1]) + reach
+        {
+            return 0.0;
+        }
+        let (ux, uy) = (self.b[0] - self.a[0], self.b[1] - self.a[1]);
+        let len2 = (ux * ux + uy * uy).max(1e-12);
+        let t = (((x - self.a[0]) * ux + (y - self.a[1]) * uy) / len2).clamp(0.0, 1.0);
+        let d = (x - self.a[0] - t * ux).hypot(y - self.a[1] - t * uy);
+        box_cover(d, h, -self.half_width_mm, self.half_width_mm)
+    }
 }
 
 /// A sample's footprint half-widths on the screen, mm, along X and Y.
@@ -91,7 +122,37 @@ impl Screen {
                 Surface::Sheet { rotation_rad, .. } => rotation_rad.sin_cos(),
                 Surface::Paper => (0.0, 1.0),
             },
+            marks: Vec::new(),
         }
+    }
+
+    /// Pencil marks like a hand's: short strokes across the pattern axis at random places
+    /// within `reach_mm` of `centre_x_mm` (not at the fringes) and a line drawn along the
+    /// pattern above it.
+    pub fn add_pencil_marks(&mut self, centre_x_mm: f64, reach_mm: f64, seed: u64) {
+        use rand::{RngExt, SeedableRng, rngs::StdRng};
+        let mut rng = StdRng::seed_from_u64(seed ^ 0x7065_6e63_696c);
+        let reach = reach_mm.max(10.0);
+        let count = rng.random_range(6..10);
+        for _ in 0..count {
+            let x = centre_x_mm + rng.random_range(-reach..reach);
+            let slant: f64 = rng.random_range(-0.12..0.12);
+            let (top, bottom) = (rng.random_range(-14.0..-6.0), rng.random_range(3.0..8.0));
+            self.marks.push(Stroke {
+                a: [x + slant * top, top],
+                b: [x + slant * bottom, bottom],
+                half_width_mm: rng.random_range(0.12..0.22),
+                darkness: rng.random_range(0.35..0.6),
+            });
+        }
+        let y = rng.random_range(-11.0..-7.0);
+        let tilt: f64 = rng.random_range(-0.01..0.01);
+        self.marks.push(Stroke {
+            a: [centre_x_mm - 0.8 * reach, y - 0.8 * reach * tilt],
+            b: [centre_x_mm + 0.8 * reach, y + 0.8 * reach * tilt],
+            half_width_mm: 0.15,
+            darkness: 0.4,
+        });
     }
 
     /// Nominal paper albedo (brightest channel), for setting the exposure.
@@ -114,6 +175,18 @@ impl Screen {
             let ink = grid_ink(g, self.grid_turn, x, y, fp);
             for (p, i) in paper.iter_mut().zip(g.ink) {
                 *p *= 1.0 - ink * (1.0 - i);
+            }
+        }
+        if !self.marks.is_empty() {
+            let h = fp.hx.max(fp.hy);
+            let graphite: f32 = self
+                .marks
+                .iter()
+                .map(|m| m.cover(x, y, h) as f32 * m.darkness)
+                .fold(0.0, f32::max);
+            if graphite > 0.0 {
+                // Graphite is a neutral grey.
+                paper = paper.map(|c| c * (1.0 - graphite));
             }
         }
         let mut out = match self.scene.surface {

@@ -6,7 +6,7 @@ use super::camera::{Camera, CameraSpec};
 use super::clutter::ClutterLayout;
 use super::effects::Effects;
 use super::farfield::{AngularSpectrum, GratingProfile, GratingSetup};
-use super::photo::sheet_corners;
+use super::photo::{Rendered, sheet_corners};
 use super::scene::{GraphPaper, Scene, Surface};
 use super::screen::{PlacedRuler, Screen};
 use super::spots::{OrderSpot, ScreenLight};
@@ -191,8 +191,6 @@ pub(crate) struct TruthParts<'a> {
 /// Assembles the truth of a rendered photo.
 pub(crate) fn build(p: TruthParts) -> Truth {
     let cam = p.camera;
-    let hmat = cam.homography();
-    let homography = [0, 1, 2].map(|r| [0, 1, 2].map(|c| hmat[(r, c)]));
     let orders: Vec<OrderTruth> = p
         .light
         .spots
@@ -222,33 +220,7 @@ pub(crate) fn build(p: TruthParts) -> Truth {
         .iter()
         .find(|o| o.order == 0)
         .map_or(0.0, |o| o.screen_mm[0]);
-    let ruler = p.screen.ruler.as_ref().map(|r: &PlacedRuler| {
-        let y = r.tick_line_y_mm();
-        let (a, b) = ([r.start_x_mm, y], [r.end_x_mm, y]);
-        RulerTruth {
-            start_mm: a,
-            end_mm: b,
-            start_px: cam.project(a),
-            end_px: cam.project(b),
-            tick_m: r.ruler.tick_m,
-            edge_y_mm: r.ruler.offset_mm,
-            mm_per_px_near_zero: cam.mm_per_px_along([zero_x, y], [1.0, 0.0]),
-        }
-    });
-    let grid = p
-        .scene
-        .graph_paper
-        .and_then(|g| grid_truth(g, p.scene, cam, zero_x));
-    let sheet = match p.scene.surface {
-        Surface::Paper => None,
-        Surface::Sheet { .. } => {
-            let corners_mm = sheet_corners(p.scene);
-            Some(SheetTruth {
-                corners_mm,
-                corners_px: corners_mm.map(|c| cam.project(c)),
-            })
-        }
-    };
+    let view = view_truth(p.scene, cam, p.screen, zero_x);
     let mut notes = vec![format!(
         "order powers: scalar thin-element model, a {}-sample transform, normalized over the \
          propagating plane waves",
@@ -279,15 +251,7 @@ pub(crate) fn build(p: TruthParts) -> Truth {
     if let Some(m) = p.reference {
         notes.push(format!("exposure set on order {m}"));
     }
-    if let Some(g) = p.clutter.glint_px() {
-        notes.push(format!(
-            "glint (not an order) near px [{:.0}, {:.0}]",
-            g[0], g[1]
-        ));
-    }
-    if let Some(t) = p.clutter.table_top_px() {
-        notes.push(format!("table covers the frame below y ≈ {t:.0} px"));
-    }
+    notes.extend(clutter_notes(p.clutter));
     let (hole_mm, hole_radius_mm) = match p.screen.hole {
         Some((c, r)) => (Some(c), Some(r)),
         None => (None, None),
@@ -308,6 +272,61 @@ pub(crate) fn build(p: TruthParts) -> Truth {
             hole_mm,
             hole_radius_mm,
         },
+        camera: view.camera,
+        homography: view.homography,
+        orders,
+        missing_orders: p.spectrum.missing.clone(),
+        unreached_orders: p.light.unreached.clone(),
+        only_zero_order,
+        ruler: view.ruler,
+        grid: view.grid,
+        sheet: view.sheet,
+        scene: *p.scene,
+        effects: *p.effects,
+        notes,
+    }
+}
+
+/// What every photo's truth says about the camera and the scale objects.
+pub(crate) struct ViewTruth {
+    pub camera: CameraTruth,
+    pub homography: [[f64; 3]; 3],
+    pub ruler: Option<RulerTruth>,
+    pub grid: Option<GridTruth>,
+    pub sheet: Option<SheetTruth>,
+}
+
+/// The camera, homography, ruler, grid and sheet truth; `zero_x` is the pattern's centre.
+pub(crate) fn view_truth(scene: &Scene, cam: &Camera, screen: &Screen, zero_x: f64) -> ViewTruth {
+    let hmat = cam.homography();
+    let homography = [0, 1, 2].map(|r| [0, 1, 2].map(|c| hmat[(r, c)]));
+    let ruler = screen.ruler.as_ref().map(|r: &PlacedRuler| {
+        let y = r.tick_line_y_mm();
+        let (a, b) = ([r.start_x_mm, y], [r.end_x_mm, y]);
+        RulerTruth {
+            start_mm: a,
+            end_mm: b,
+            start_px: cam.project(a),
+            end_px: cam.project(b),
+            tick_m: r.ruler.tick_m,
+            edge_y_mm: r.ruler.offset_mm,
+            mm_per_px_near_zero: cam.mm_per_px_along([zero_x, y], [1.0, 0.0]),
+        }
+    });
+    let grid = scene
+        .graph_paper
+        .and_then(|g| grid_truth(g, scene, cam, zero_x));
+    let sheet = match scene.surface {
+        Surface::Paper => None,
+        Surface::Sheet { .. } => {
+            let corners_mm = sheet_corners(scene);
+            Some(SheetTruth {
+                corners_mm,
+                corners_px: corners_mm.map(|c| cam.project(c)),
+            })
+        }
+    };
+    ViewTruth {
         camera: CameraTruth {
             spec: cam.spec,
             aim_mm: cam.aim_mm,
@@ -315,17 +334,62 @@ pub(crate) fn build(p: TruthParts) -> Truth {
             centre_mm: cam.centre_mm,
         },
         homography,
-        orders,
-        missing_orders: p.spectrum.missing.clone(),
-        unreached_orders: p.light.unreached.clone(),
-        only_zero_order,
         ruler,
         grid,
         sheet,
-        scene: *p.scene,
-        effects: *p.effects,
-        notes,
     }
+}
+
+/// Notes on the image-space distractors.
+pub(crate) fn clutter_notes(clutter: &ClutterLayout) -> Vec<String> {
+    let mut notes = Vec::new();
+    if let Some(g) = clutter.glint_px() {
+        notes.push(format!(
+            "glint (not an order) near px [{:.0}, {:.0}]",
+            g[0], g[1]
+        ));
+    }
+    if let Some(t) = clutter.table_top_px() {
+        notes.push(format!("table covers the frame below y ≈ {t:.0} px"));
+    }
+    if let Some(s) = &clutter.shade {
+        notes.push(format!(
+            "room light shadowed (to {:.0} %) beyond an edge through px [{:.0}, {:.0}] on the \
+             side of [{:.2}, {:.2}]",
+            100.0 * s.depth,
+            s.point[0],
+            s.point[1],
+            s.normal[0],
+            s.normal[1]
+        ));
+    }
+    notes
+}
+
+/// Notes on the pencil marks, flare and blooming of a rendered photo.
+pub(crate) fn effect_notes(r: &Rendered) -> Vec<String> {
+    let mut notes = Vec::new();
+    if !r.screen.marks.is_empty() {
+        let xs: Vec<String> = r
+            .screen
+            .marks
+            .iter()
+            .map(|m| format!("{:.1}", 0.5 * (m.a[0] + m.b[0])))
+            .collect();
+        notes.push(format!(
+            "pencil strokes (not fringes) centred at X = [{}] mm",
+            xs.join(", ")
+        ));
+    }
+    if let Some((p, angle)) = r.flare {
+        notes.push(format!(
+            "lens-flare streak (not a fringe) through px [{:.0}, {:.0}] at {:.1}° from image x",
+            p[0],
+            p[1],
+            angle.to_degrees()
+        ));
+    }
+    notes
 }
 
 /// Two crossings of heavy grid lines just above the pattern, as far apart as the frame

@@ -1,6 +1,7 @@
 //! Whole-photo checks: the truth against the rendered pixels, scenes, errors and files.
 
 mod files;
+mod fringes;
 mod image_truth;
 mod scenes;
 
