@@ -98,7 +98,7 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
     clock.lap("fit");
     let mut record = base_record("two-slit", &m, &book);
     record.fit = Some(fit_entry(
-        "two slits: I = B + B′·(x − x0)/L + I0·sinc²(π a s/λ)·(1 + V·cos(2π d s/λ + φ))/2, s = sin atan((x − x0)/L)",
+        "two slits: I = B + B′·u + B″·u² + I0·sinc²(π a s/λ)·(1 + V·cos(2π d s/λ + φ))/2, u = (x − x0)/L, s = sin atan u",
         &TwoSlitModel,
         &sol.fit,
         &[(two_slit::param::X0, 1e-3)],
@@ -173,7 +173,7 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
     clock.lap("fit");
     let mut record = base_record("slit", &m, &book);
     record.fit = Some(fit_entry(
-        "slit: I = B + B′·(x − x0)/L + I0·sinc²(π a s/λ), s = sin atan((x − x0)/L)",
+        "slit: I = B + B′·u + B″·u² + I0·sinc²(π a s/λ), u = (x − x0)/L, s = sin atan u",
         &SlitModel,
         &sol.fit,
         &[(slit::param::X0, 1e-3)],

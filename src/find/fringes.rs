@@ -240,13 +240,12 @@ pub struct FringeTrack {
     pub half_width_px: usize,
 }
 
-/// Samples the profile every pixel along the band, over its bright extent and half as far
-/// again on each side (the faint outer fringes carry the most angle, the dark beyond them
-/// the background), inside the frame.
+/// Samples the profile every pixel along the band, as far as it runs inside the frame: the
+/// faint outer fringes, well beyond the bright middle, carry the most angle, and the dark
+/// beyond them the background.
 pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
     let half = band.sigma_across_px.round().clamp(1.0, 40.0) as usize;
     let (lo, hi) = band.bright;
-    let span = hi - lo;
     let (w, h) = (raster.width() as f64, raster.height() as f64);
     let inside = |t: f64| {
         [-(half as f64), half as f64].iter().all(|&o| {
@@ -254,7 +253,8 @@ pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
             p.x >= 0.0 && p.y >= 0.0 && p.x <= w - 1.0 - 1e-9 && p.y <= h - 1.0 - 1e-9
         })
     };
-    let (mut a, mut b) = (lo - 0.5 * span, hi + 0.5 * span);
+    let reach = w.hypot(h);
+    let (mut a, mut b) = (lo - reach, hi + reach);
     while a < b && !inside(a) {
         a += 1.0;
     }

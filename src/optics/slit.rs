@@ -19,7 +19,6 @@ use super::profile::{
 use super::two_slit::{linear_two, median_step, sinc};
 use crate::fit::FitError;
 use crate::fit::lm::{LeastSquares, LmOptions, minimize};
-use crate::fit::spectral::PeriodEstimator;
 use crate::scale::ScreenMap;
 use crate::uncertainty::{Estimate, Input, McEstimate, Validation};
 use nalgebra::DMatrix;
@@ -46,6 +45,8 @@ pub mod param {
     pub const SLOPE: usize = 3;
     /// a/λ.
     pub const A_OVER_LAMBDA: usize = 4;
+    /// Background curvature per unit ((x − x0)/L)².
+    pub const CURVATURE: usize = 5;
 }
 
 /// The single-slit intensity model over sin θ.
@@ -59,16 +60,17 @@ impl IntensityModel for SlitModel {
             "background",
             "background_slope",
             "a_over_lambda",
+            "background_curvature",
         ]
     }
 
     fn intensity(&self, p: &[f64], s: f64, u: f64) -> f64 {
-        p[2] + p[3] * u + p[1] * sinc(PI * p[4] * s).powi(2)
+        p[2] + (p[3] + p[5] * u) * u + p[1] * sinc(PI * p[4] * s).powi(2)
     }
 
     fn typical(&self, p: &[f64]) -> Vec<f64> {
         let a = p[1].abs().max(1e-6);
-        vec![1.0, a, a, a, p[4].abs()]
+        vec![1.0, a, a, a, p[4].abs(), a]
     }
 }
 
@@ -144,19 +146,39 @@ pub fn solve(
         ));
     }
     let step = median_step(&profile.x_mm);
-    let start = centre_and_spacing(profile)?;
-    if start.spacing_mm / step < 3.0 {
+    let start = centre_and_core(profile)?;
+    // a/λ by a broad scan, from a first minimum at half the profile's extent to one 3 px
+    // from the centre; for the wire the beam's spot is kept out of it.
+    let extent = (profile.x_mm[n - 1] - profile.x_mm[0]).abs();
+    let spot = match inputs.obstacle {
+        Obstacle::Slit => 0.0,
+        Obstacle::Wire => 1.5 * start.bright_half_width_mm,
+    };
+    let (sx, sy): (Vec<f64>, Vec<f64>) = (0..n)
+        .filter(|&i| profile.exact(i) && (profile.x_mm[i] - start.centre_mm).abs() >= spot)
+        .map(|i| (profile.x_mm[i], profile.value[i]))
+        .unzip();
+    let coarse = scan_width(
+        &sx,
+        &sy,
+        l,
+        start.centre_mm,
+        (l / (0.5 * extent), l / (3.0 * step)),
+        240,
+    );
+    let q0 = coarse[param::A_OVER_LAMBDA];
+    let spacing_mm = l / q0;
+    if spacing_mm / step < 3.5 {
         return Err(OpticsError::Unsolvable(format!(
             "fringes closer than 3 px ({:.1} px); move the screen further or come closer",
-            start.spacing_mm / step
+            spacing_mm / step
         )));
     }
-    let q0 = l / start.spacing_mm;
     // For the wire the beam's own spot sits on the central lobe: fit beyond the first
     // minima only, and never take a minimum inside the spot.
     let keep_out_mm = match inputs.obstacle {
         Obstacle::Slit => 0.0,
-        Obstacle::Wire => start.bright_half_width_mm.max(0.8 * l / q0),
+        Obstacle::Wire => start.bright_half_width_mm.max(0.8 * spacing_mm),
     };
     let fitted: Vec<bool> = (0..n)
         .map(|i| profile.used[i] && (profile.x_mm[i] - start.centre_mm).abs() >= keep_out_mm)
@@ -164,7 +186,7 @@ pub fn solve(
     let samples = profile.samples(|i| fitted[i]);
     let (x, y) = samples.exact();
     let model = SlitModel;
-    let p0 = scan_width(&x, &y, l, start.centre_mm, q0);
+    let p0 = scan_width(&x, &y, l, start.centre_mm, (0.8 * q0, 1.25 * q0), 60);
     let fit = fit_profile(&model, &samples, l, 1.0, &p0, "slit profile").map_err(|e| {
         OpticsError::Unsolvable(format!("the sinc² profile could not be fitted: {e}"))
     })?;
@@ -306,16 +328,12 @@ pub fn solve(
 
 struct Start {
     centre_mm: f64,
-    /// Spacing of the outer minima, mm (λL/a near the centre).
-    spacing_mm: f64,
     /// Half-width of the bright centre (above a quarter of the peak), mm.
     bright_half_width_mm: f64,
 }
 
-/// The centre (brightness centroid), the bright core's half width, and the minima spacing
-/// from the spectrum of the profile with the core blanked out: outside the central lobe a
-/// sinc² is periodic in sin θ, its minima λ/a apart.
-fn centre_and_spacing(profile: &FringeProfile) -> Result<Start, OpticsError> {
+/// The centre (brightness centroid of the bright core) and the core's half width.
+fn centre_and_core(profile: &FringeProfile) -> Result<Start, OpticsError> {
     let v = &profile.value;
     let x = &profile.x_mm;
     let (imax, &peak) = v
@@ -338,25 +356,9 @@ fn centre_and_spacing(profile: &FringeProfile) -> Result<Start, OpticsError> {
         sw += w;
         swx += w * x[i];
     }
-    let centre_mm = if sw > 0.0 { swx / sw } else { x[imax] };
-    let half = 0.5 * (x[hi] - x[lo]).abs();
-    let outside: Vec<f64> = (0..v.len())
-        .filter(|&i| i < lo || i > hi)
-        .map(|i| v[i])
-        .collect();
-    let fill = outside.iter().sum::<f64>() / outside.len().max(1) as f64;
-    let blanked: Vec<f64> = (0..v.len())
-        .map(|i| if (lo..=hi).contains(&i) { fill } else { v[i] })
-        .collect();
-    let n = v.len();
-    let step = median_step(x);
-    let period = PeriodEstimator::new()
-        .dominant_period(&blanked, 2.0, n as f64 / 4.0)
-        .ok_or_else(|| OpticsError::Unsolvable("the profile shows no dark fringes".into()))?;
     Ok(Start {
-        centre_mm,
-        spacing_mm: period.period * step,
-        bright_half_width_mm: half,
+        centre_mm: if sw > 0.0 { swx / sw } else { x[imax] },
+        bright_half_width_mm: 0.5 * (x[hi] - x[lo]).abs(),
     })
 }
 
@@ -369,12 +371,13 @@ fn percentile(v: &[f64], p: f64) -> f64 {
     *s.select_nth_unstable_by(k, f64::total_cmp).1
 }
 
-/// a/λ by a scan around `q0` (half to twice), amplitude and background solved linearly at
-/// each step; the best becomes the fit's start.
-fn scan_width(x: &[f64], y: &[f64], l: f64, x0: f64, q0: f64) -> Vec<f64> {
-    let mut best = (f64::INFINITY, vec![x0, 1.0, 0.0, 0.0, q0]);
-    for k in 0..=60 {
-        let q = q0 * 2f64.powf(-1.0 + 2.0 * k as f64 / 60.0);
+/// a/λ by a log-spaced scan over `range` in `steps`, amplitude and background solved
+/// linearly at each step; the best becomes the fit's start.
+fn scan_width(x: &[f64], y: &[f64], l: f64, x0: f64, range: (f64, f64), steps: usize) -> Vec<f64> {
+    let (q_lo, q_hi) = range;
+    let mut best = (f64::INFINITY, vec![x0, 1.0, 0.0, 0.0, q_lo, 0.0]);
+    for k in 0..=steps {
+        let q = q_lo * (q_hi / q_lo).powf(k as f64 / steps as f64);
         let shape: Vec<f64> = x
             .iter()
             .map(|&xi| sinc(PI * q * sine_of_angle(xi, x0, l)).powi(2))
@@ -382,7 +385,7 @@ fn scan_width(x: &[f64], y: &[f64], l: f64, x0: f64, q0: f64) -> Vec<f64> {
         let Some((a, b)) = linear_two(&shape, y) else {
             continue;
         };
-        let trial = vec![x0, a, b, 0.0, q];
+        let trial = vec![x0, a, b, 0.0, q, 0.0];
         let c = profile::cost_at(&SlitModel, x, y, l, &trial);
         if a > 0.0 && c < best.0 {
             best = (c, trial);
@@ -402,7 +405,9 @@ pub fn locate_minima(profile: &FringeProfile, p: &[f64], l: f64, keep_out_mm: f6
     let (x0, q) = (p[param::X0], p[param::A_OVER_LAMBDA]);
     let flat = |x: f64, y: f64| {
         let s = sine_of_angle(x, x0, l);
-        (y - p[param::BACKGROUND] - p[param::SLOPE] * (x - x0) / l) * (q * s).powi(2)
+        let u = (x - x0) / l;
+        let background = p[param::BACKGROUND] + (p[param::SLOPE] + p[param::CURVATURE] * u) * u;
+        (y - background) * (q * s).powi(2)
     };
     let x = &profile.x_mm;
     let n = x.len();
@@ -426,7 +431,7 @@ pub fn locate_minima(profile: &FringeProfile, p: &[f64], l: f64, keep_out_mm: f6
             // Local spacing of minima here: dx/dm.
             let s2 = (m as f64 + 0.5 * side as f64) / q;
             let spacing = if s2.abs() < 1.0 {
-                (l * s2 / (1.0 - s2 * s2).sqrt() - xm).abs() * 2.0
+                (x0 + l * s2 / (1.0 - s2 * s2).sqrt() - xm).abs() * 2.0
             } else {
                 continue;
             };

@@ -5,7 +5,8 @@
 //! writes cos² as (1 + V·cos(2π d s/λ + φ))/2: the visibility V < 1 takes up partial
 //! coherence and the camera's blur, which wash the fringes out without moving them, and φ a
 //! path difference between the slits, which shifts the fringes under the envelope. A
-//! background B + B′·(x − x0)/L takes the room light. Nothing is small-angle: each sample's
+//! background B + B′·u + B″·u², u = (x − x0)/L, takes the room light and the lens's
+//! vignetting. Nothing is small-angle: each sample's
 //! sin θ comes from its screen position through [`super::profile::sine_of_angle`].
 //!
 //! Missing orders (d a multiple of a) make every second or third fringe vanish, so the
@@ -48,6 +49,8 @@ pub mod param {
     pub const A_OVER_LAMBDA: usize = 6;
     /// Fringe phase, rad.
     pub const PHASE: usize = 7;
+    /// Background curvature per unit ((x − x0)/L)².
+    pub const CURVATURE: usize = 8;
 }
 
 /// The two-slit intensity model over sin θ.
@@ -64,18 +67,19 @@ impl IntensityModel for TwoSlitModel {
             "d_over_lambda",
             "a_over_lambda",
             "phase_rad",
+            "background_curvature",
         ]
     }
 
     fn intensity(&self, p: &[f64], s: f64, u: f64) -> f64 {
         let envelope = sinc(PI * p[6] * s).powi(2);
         let fringes = 0.5 * (1.0 + p[4] * (2.0 * PI * p[5] * s + p[7]).cos());
-        p[2] + p[3] * u + p[1] * envelope * fringes
+        p[2] + (p[3] + p[8] * u) * u + p[1] * envelope * fringes
     }
 
     fn typical(&self, p: &[f64]) -> Vec<f64> {
         let a = p[1].abs().max(1e-6);
-        vec![1.0, a, a, a, 0.1, p[5].abs(), p[6].abs(), 0.1]
+        vec![1.0, a, a, a, 0.1, p[5].abs(), p[6].abs(), 0.1, a]
     }
 }
 
@@ -356,12 +360,12 @@ fn start_values(x: &[f64], y: &[f64], distance_mm: f64, period_mm: f64) -> Vec<f
     let peak = y.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let mut best = (
         f64::INFINITY,
-        vec![x0, peak - floor, floor, 0.0, 0.9, p, p / 3.0, 0.0],
+        vec![x0, peak - floor, floor, 0.0, 0.9, p, p / 3.0, 0.0, 0.0],
     );
     let steps = 48;
     for k in 0..steps {
         let q = p * (1.0 / 15.0) * (15.0f64 / 1.1).powf(k as f64 / (steps - 1) as f64);
-        let mut trial = vec![x0, 1.0, 0.0, 0.0, 0.9, p, q, 0.0];
+        let mut trial = vec![x0, 1.0, 0.0, 0.0, 0.9, p, q, 0.0, 0.0];
         // Linear least squares for amplitude and background with the shape fixed.
         let shape: Vec<f64> = x
             .iter()
