@@ -207,11 +207,13 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
             "the minima line x_m = x0 + L·tan(asin(mλ/w)), the beam's own spot left out",
         ),
     };
-    record.assumptions.push(format!(
-        "{} from {primary_from}; cross-check from {check_from}: {}",
-        sol.measurand,
-        quantity::format_si(sol.cross_check.value, sol.cross_check.u, "m")
-    ));
+    if let Some(check) = &sol.cross_check {
+        record.assumptions.push(format!(
+            "{} from {primary_from}; cross-check from {check_from}: {}",
+            sol.measurand,
+            quantity::format_si(check.value, check.u, "m")
+        ));
+    }
     if obstacle == Obstacle::Wire {
         record
             .assumptions

@@ -163,7 +163,7 @@ fn refine(raster: &dyn Raster, band: &FringeBand) -> Result<FringeBand, FindErro
     let (lo, hi) = band.bright;
     let mut centres = Vec::new();
     let mut weights = Vec::new();
-    let (mut s2w, mut sw_all) = (0.0, 0.0);
+    let mut sigmas = Vec::new();
     for k in 0..SECTIONS {
         let t = lo + (hi - lo) * (k as f64 + 0.5) / SECTIONS as f64;
         let n = (2.0 * reach) as usize + 1;
@@ -200,17 +200,36 @@ fn refine(raster: &dyn Raster, band: &FringeBand) -> Result<FringeBand, FindErro
         let mean_o = so / sw;
         centres.push(band.at(t, mean_o));
         weights.push(sw);
-        s2w += soo - so * so / sw;
-        sw_all += sw;
+        sigmas.push(((soo - so * so / sw) / sw).max(0.25).sqrt());
     }
     if centres.len() < 5 {
         return Err(FindError::NoPattern(
             "no fringe band: too few cross-sections of the pattern lie inside the photo".into(),
         ));
     }
-    let line = tls_line(&centres, &weights).map_err(|e| {
+    let bad_line = |e: crate::fit::FitError| {
         FindError::NoPattern(format!("the fringe band does not lie on a line: {e}"))
-    })?;
+    };
+    let mut line = tls_line(&centres, &weights).map_err(bad_line)?;
+    // Sections crossed by a streak or a glint lean off the band: drop those far out by a
+    // robust (median absolute deviation) scale and fit again.
+    let off: Vec<f64> = centres.iter().map(|c| line.across(*c).abs()).collect();
+    let mut sorted = off.clone();
+    sorted.sort_by(f64::total_cmp);
+    let limit = (4.0 * 1.4826 * sorted[sorted.len() / 2]).max(0.5);
+    let mut keep: Vec<usize> = (0..centres.len()).filter(|&i| off[i] <= limit).collect();
+    if keep.len() >= 5 && keep.len() < centres.len() {
+        let c: Vec<Vector2<f64>> = keep.iter().map(|&i| centres[i]).collect();
+        let w: Vec<f64> = keep.iter().map(|&i| weights[i]).collect();
+        line = tls_line(&c, &w).map_err(bad_line)?;
+    } else if keep.len() < 5 {
+        keep = (0..centres.len()).collect();
+    }
+    // The band's width from the sections on it, by their median: a streak across a few
+    // sections widens those alone.
+    let mut widths: Vec<f64> = keep.iter().map(|&i| sigmas[i]).collect();
+    widths.sort_by(f64::total_cmp);
+    let sigma_across_px = widths[widths.len() / 2];
     let mut direction = line.direction;
     if direction.dot(&band.direction) < 0.0 {
         direction = -direction;
@@ -220,7 +239,7 @@ fn refine(raster: &dyn Raster, band: &FringeBand) -> Result<FringeBand, FindErro
     Ok(FringeBand {
         point,
         direction,
-        sigma_across_px: (s2w / sw_all).max(0.25).sqrt(),
+        sigma_across_px,
         bright: band.bright,
     })
 }

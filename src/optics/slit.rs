@@ -106,8 +106,8 @@ pub struct SlitSolution {
     /// Its estimate with budget.
     pub estimate: Estimate,
     /// The cross-check estimate (the minima line for a slit, the profile fit for a
-    /// wire), with its budget.
-    pub cross_check: Estimate,
+    /// wire), with its budget; None when a slit's minima could not be located.
+    pub cross_check: Option<Estimate>,
     /// The profile fit.
     pub fit: ProfileFit,
     /// Whether each profile sample entered the profile fit.
@@ -116,8 +116,8 @@ pub struct SlitSolution {
     pub model_values: Vec<f64>,
     /// Minima found, by order.
     pub minima: Vec<Minimum>,
-    /// The minima fit: [x0 mm, a/λ] with covariance.
-    pub minima_fit: (Vec<f64>, DMatrix<f64>),
+    /// The minima fit: [x0 mm, a/λ] with covariance, when there were two or more.
+    pub minima_fit: Option<(Vec<f64>, DMatrix<f64>)>,
     /// Monte Carlo check of the measurand, when asked for.
     pub monte_carlo: Option<(McEstimate, Validation)>,
     /// Things the user should know.
@@ -199,14 +199,31 @@ pub fn solve(
     }
     let q = params[param::A_OVER_LAMBDA];
     let minima = locate_minima(profile, &params, l, keep_out_mm);
-    if minima.len() < 2 {
+    let mut warnings = Vec::new();
+    let minima_fit = if minima.len() >= 2 {
+        Some(
+            fit_minima(&minima, l, 1.0, &[params[param::X0], q]).map_err(|e| {
+                OpticsError::Unsolvable(format!("the minima could not be fitted: {e}"))
+            })?,
+        )
+    } else if inputs.obstacle == Obstacle::Wire {
         return Err(OpticsError::Unsolvable(format!(
-            "only {} dark fringe(s) could be located; the minima need at least two",
+            "only {} dark fringe(s) could be located outside the beam's spot; the wire's \
+             diameter needs at least two",
             minima.len()
         )));
-    }
-    let (minima_params, minima_cov) = fit_minima(&minima, l, 1.0, &[params[param::X0], q])
-        .map_err(|e| OpticsError::Unsolvable(format!("the minima could not be fitted: {e}")))?;
+    } else {
+        warnings.push(format!(
+            "only {} dark fringe(s) could be located (pencil marks, grid lines or noise over \
+             them?): the width rests on the profile fit alone, without the minima cross-check",
+            minima.len()
+        ));
+        None
+    };
+    // Without minima (slit only) the minima refit below is never propagated.
+    let (minima_params, minima_cov) = minima_fit
+        .clone()
+        .unwrap_or_else(|| (vec![params[param::X0], q], DMatrix::identity(2, 2)));
 
     // The profile fit's budget, and the minima's.
     let again_profile = |l_mm: f64, factor: f64| -> Result<Vec<f64>, OpticsError> {
@@ -265,21 +282,24 @@ pub fn solve(
         primary.1,
         monte_carlo,
     )?;
-    let (check, _) = profile::propagate(
-        secondary.0,
-        &inputs.wavelength,
-        &inputs.distance,
-        map,
-        secondary.1,
-        None,
-    )?;
-    let (Some(estimate), Some(cross_check)) = (est.into_iter().next(), check.into_iter().next())
-    else {
+    let cross_check = if minima_fit.is_some() {
+        let (check, _) = profile::propagate(
+            secondary.0,
+            &inputs.wavelength,
+            &inputs.distance,
+            map,
+            secondary.1,
+            None,
+        )?;
+        check.into_iter().next()
+    } else {
+        None
+    };
+    let Some(estimate) = est.into_iter().next() else {
         return Err(OpticsError::Unsolvable(
             "propagation returned no estimate".into(),
         ));
     };
-    let mut warnings = Vec::new();
     // Compare on the fits' own uncertainties: wavelength, distance and scale are common
     // to both and cancel in the difference.
     let u_fit = |e: &Estimate| {
@@ -290,9 +310,13 @@ pub fn solve(
             .sum::<f64>()
             .sqrt()
     };
-    let diff = (estimate.value - cross_check.value).abs();
-    let u_diff = u_fit(&estimate).hypot(u_fit(&cross_check));
-    if diff > 2.0 * u_diff {
+    let disagreement = cross_check.as_ref().map(|c| {
+        (
+            (estimate.value - c.value).abs(),
+            u_fit(&estimate).hypot(u_fit(c)),
+        )
+    });
+    if let Some((diff, u_diff)) = disagreement.filter(|(d, u)| *d > 2.0 * u) {
         warnings.push(format!(
             "the sinc² profile fit and the minima disagree by {:.2} % ({:.1}× their combined fit \
              uncertainty): the profile may be distorted by blooming, stray light or a \
@@ -320,7 +344,7 @@ pub fn solve(
         fitted,
         model_values,
         minima,
-        minima_fit: (minima_params, minima_cov),
+        minima_fit,
         monte_carlo,
         warnings,
     })
@@ -616,9 +640,9 @@ mod tests {
             sol.estimate.value
         );
         assert!(
-            (sol.cross_check.value / a - 1.0).abs() < 2e-3,
-            "{}",
-            sol.cross_check.value
+            (sol.cross_check.as_ref().unwrap().value / a - 1.0).abs() < 2e-3,
+            "{:?}",
+            sol.cross_check
         );
         assert!(sol.warnings.is_empty(), "{:?}", sol.warnings);
         // The minima sit at a·sin θ = mλ (Hecht §10.2.1).
