@@ -139,6 +139,98 @@ impl<M: IntensityModel> LeastSquares for Problem<'_, M> {
     }
 }
 
+/// The same problem with the centre x0 held fixed (parameters 1.. free).
+struct FixedCentre<'a, M: IntensityModel> {
+    inner: Problem<'a, M>,
+    x0: f64,
+}
+
+impl<M: IntensityModel> FixedCentre<'_, M> {
+    fn full(&self, q: &[f64]) -> Vec<f64> {
+        std::iter::once(self.x0).chain(q.iter().copied()).collect()
+    }
+}
+
+impl<M: IntensityModel> LeastSquares for FixedCentre<'_, M> {
+    fn residual_count(&self) -> usize {
+        self.inner.residual_count()
+    }
+
+    fn residuals(&self, q: &[f64], r: &mut [f64]) -> bool {
+        self.inner.residuals(&self.full(q), r)
+    }
+
+    fn jacobian(&self, q: &[f64], r: &[f64], jac: &mut DMatrix<f64>) -> bool {
+        let full = self.full(q);
+        let mut whole = DMatrix::zeros(r.len(), full.len());
+        self.inner.jacobian(&full, r, &mut whole);
+        jac.copy_from(&whole.columns(1, q.len()));
+        true
+    }
+}
+
+/// Half the difference between the parameters fitted to the two sides of the pattern
+/// separately (the centre held at `params[0]`), per parameter (0 for the centre). The two
+/// sides see independent speckle and stray light, so their disagreement measures the
+/// slowly varying disturbances the residual correlation cannot show (a split-sample check,
+/// as in the jackknife). None when a side cannot be fitted.
+pub fn side_spread<M: IntensityModel>(
+    model: &M,
+    samples: &Samples,
+    distance_mm: f64,
+    params: &[f64],
+) -> Option<Vec<f64>> {
+    let side = |left: bool| -> Option<Vec<f64>> {
+        let mut half = Samples::default();
+        for i in 0..samples.len() {
+            if (samples.x[i] < params[0]) == left {
+                half.x.push(samples.x[i]);
+                half.y.push(samples.y[i]);
+                half.lower_bound.push(samples.lower_bound[i]);
+            }
+        }
+        let problem = FixedCentre {
+            inner: Problem {
+                model,
+                samples: &half,
+                distance_mm,
+                scale: 1.0,
+            },
+            x0: params[0],
+        };
+        minimize(&problem, &params[1..], &options(), "half profile")
+            .ok()
+            .map(|r| r.params)
+    };
+    let (l, r) = (side(true)?, side(false)?);
+    Some(
+        std::iter::once(0.0)
+            .chain(l.iter().zip(&r).map(|(a, b)| 0.5 * (a - b).abs()))
+            .collect(),
+    )
+}
+
+/// Enlarges the standard uncertainty of each parameter to at least `floor[i]`, keeping the
+/// correlations.
+pub fn widen(covariance: &mut DMatrix<f64>, floor: &[f64]) {
+    let n = covariance.nrows();
+    let f: Vec<f64> = (0..n)
+        .map(|i| {
+            let u = covariance[(i, i)].max(0.0).sqrt();
+            if u > 0.0 {
+                (floor[i] / u).max(1.0)
+            } else {
+                1.0
+            }
+        })
+        .collect();
+    for i in 0..n {
+        for j in 0..n {
+            covariance[(i, j)] *= f[i] * f[j];
+        }
+    }
+}
+
 /// A fitted profile.
 #[derive(Debug, Clone)]
 pub struct ProfileFit {

@@ -115,6 +115,12 @@ pub struct TwoSlitSolution {
 /// profile aliases (Nyquist is two; common practice keeps a margin).
 pub const MIN_SAMPLES_PER_FRINGE: f64 = 3.0;
 
+/// Least fringe visibility to measure: below it the fringes are not resolved (finer than
+/// the camera's pixels, which average them out) or the light is not coherent over both slits,
+/// and the period the fit finds is an alias (common practice: a usable interferogram shows
+/// a contrast of a third or better).
+pub const MIN_VISIBILITY: f64 = 0.3;
+
 /// Fringe period of the profile in mm from its spectrum, or None if there is no periodic
 /// signal. Only the bright part is transformed (from the first to the last sample above a
 /// quarter of the peak over the floor), and periods longer than a third of it are not
@@ -185,15 +191,42 @@ pub fn solve(
             Err(e) => failure = Some(e),
         }
     }
+    let clipped = samples.lower_bound.iter().filter(|c| **c).count();
+    let saturation = if clipped * 10 > samples.len() {
+        format!(
+            "; {:.0} % of the profile is saturated: take the photo with a shorter exposure, \
+             less gain or a weaker beam",
+            100.0 * clipped as f64 / samples.len() as f64
+        )
+    } else {
+        String::new()
+    };
     let Some(mut fit) = best else {
         return Err(OpticsError::Unsolvable(match failure {
-            Some(e) => format!("the two-slit model could not be fitted: {e}"),
-            None => "the two-slit fit ended with a slit wider than the separation or a \
-                     negative intensity: the profile does not look like two-slit fringes"
-                .into(),
+            Some(e) => format!("the two-slit model could not be fitted: {e}{saturation}"),
+            None => format!(
+                "the two-slit fit ended with a slit wider than the separation or a negative \
+                 intensity: the profile does not look like two-slit fringes{saturation}"
+            ),
         }));
     };
     normalise(&mut fit.params);
+    // The envelope's width rests on slowly varying light (speckle, stray light) that the
+    // residual correlation underrates: the two sides' disagreement sets a floor.
+    if let Some(spread) = profile::side_spread(&model, &samples, distance_mm, &fit.params) {
+        let mut spread = spread;
+        spread[param::PHASE] = 0.0;
+        profile::widen(&mut fit.covariance, &spread);
+    }
+    let visibility = fit.params[param::VISIBILITY];
+    if visibility < MIN_VISIBILITY {
+        return Err(OpticsError::Unsolvable(format!(
+            "the fringes are washed out (visibility {visibility:.2}): fringes closer than \
+             {MIN_SAMPLES_PER_FRINGE:.0} px are not resolved by the camera; move the screen \
+             further or come closer (or, if the fringes are visible by eye, the laser is not \
+             coherent across both slits)"
+        )));
+    }
     let mut warnings = Vec::new();
     let d_over_lambda = fit.params[param::D_OVER_LAMBDA];
     let fringe_mm = distance_mm / d_over_lambda;
