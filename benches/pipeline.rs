@@ -1,11 +1,14 @@
-//! Speed of the whole `grating` measurement against the floor it is judged by: decoding
-//! the same 12-megapixel JPEG alone (DESIGN §6: the whole within 1.5× the decode).
-//! The photo is simulated once into a temporary folder.
+//! Speed of the whole `grating` and `two-slit` measurements against the floor they are
+//! judged by: decoding the same 12-megapixel JPEG alone (DESIGN §6 and the fringe kinds'
+//! budget: the whole within 1.5× the decode). The photos are simulated once into a
+//! temporary folder.
 
 use clap::Parser;
 use criterion::{Criterion, criterion_group, criterion_main};
 use fringegauge::cli::{Cli, run};
-use fringegauge::simulate::{self, CameraSpec, Effects, Framing, GratingSetup, Scene};
+use fringegauge::simulate::{
+    self, ApertureSetup, CameraSpec, Effects, Framing, GratingSetup, Scene,
+};
 use std::hint::black_box;
 use std::path::PathBuf;
 
@@ -46,6 +49,36 @@ fn photo_12mp() -> Photo12 {
     }
 }
 
+/// A 12 MP two-slit photo (0.25 mm, 0.05 mm, 2.5 m) and its ruler flag.
+fn two_slit_12mp(dir: &std::path::Path) -> (PathBuf, String) {
+    let path = dir.join("two-slit-12mp.jpg");
+    let camera = CameraSpec {
+        yaw_rad: 6f64.to_radians(),
+        framing: Framing::Auto {
+            max_order: 10,
+            margin: 0.06,
+        },
+        ..CameraSpec::twelve_megapixel()
+    };
+    let sim = simulate::render_aperture(
+        &ApertureSetup::two_slit(),
+        &Scene::default(),
+        &camera,
+        &Effects::default(),
+        12,
+    )
+    .expect("12 MP photo");
+    sim.write(&path, 92, true).expect("written");
+    let r = sim.truth.ruler.expect("ruler");
+    let (s, e) = (r.start_px.expect("start"), r.end_px.expect("end"));
+    let p = |f: f64| [s[0] + f * (e[0] - s[0]), s[1] + f * (e[1] - s[1])];
+    let (a, b) = (p(0.05), p(0.95));
+    (
+        path,
+        format!("{:.0},{:.0},{:.0},{:.0}", a[0], a[1], b[0], b[1]),
+    )
+}
+
 fn benches(c: &mut Criterion) {
     let photo = photo_12mp();
     let bytes = std::fs::read(&photo.path).expect("read");
@@ -75,6 +108,29 @@ fn benches(c: &mut Criterion) {
                 "1.25m±2mm",
                 "--ruler",
                 &photo.ruler,
+                "--json",
+            ]);
+            black_box(run(cli).expect("measured"))
+        })
+    });
+    let (fringe_path, fringe_ruler) = two_slit_12mp(photo._dir.path());
+    let fringe_bytes = std::fs::read(&fringe_path).expect("read");
+    group.bench_function("two-slit photo: decode alone (image crate)", |b| {
+        b.iter(|| black_box(image::load_from_memory(black_box(&fringe_bytes)).expect("decodes")))
+    });
+    let fringe_path = fringe_path.display().to_string();
+    group.bench_function("two-slit end to end", |b| {
+        b.iter(|| {
+            let cli = Cli::parse_from([
+                "fringegauge",
+                "two-slit",
+                &fringe_path,
+                "--wavelength",
+                "532nm±1nm",
+                "--distance",
+                "2.5m±2mm",
+                "--ruler",
+                &fringe_ruler,
                 "--json",
             ]);
             black_box(run(cli).expect("measured"))

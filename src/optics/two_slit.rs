@@ -20,6 +20,7 @@ use super::profile::{
 use crate::fit::spectral::PeriodEstimator;
 use crate::scale::ScreenMap;
 use crate::uncertainty::{Estimate, Input, McEstimate, Validation};
+use rayon::prelude::*;
 use std::f64::consts::PI;
 
 /// sinc x = sin x / x, 1 at 0.
@@ -172,16 +173,22 @@ pub fn solve(
     let model = TwoSlitModel;
     let mut best: Option<ProfileFit> = None;
     let mut failure = None;
-    for factor in [1.0, 2.0, 0.5] {
-        let start = start_values(&x, &y, distance_mm, period_mm / factor);
-        match fit_profile(
-            &model,
-            &samples,
-            distance_mm,
-            1.0,
-            &start,
-            "two-slit profile",
-        ) {
+    let tries: Vec<_> = [1.0, 2.0, 0.5]
+        .par_iter()
+        .map(|factor| {
+            let start = start_values(&x, &y, distance_mm, period_mm / factor);
+            fit_profile(
+                &model,
+                &samples,
+                distance_mm,
+                1.0,
+                &start,
+                "two-slit profile",
+            )
+        })
+        .collect();
+    for attempt in tries {
+        match attempt {
             Ok(f) if plausible(&f.params) => {
                 if best.as_ref().is_none_or(|b| f.cost < b.cost) {
                     best = Some(f);
