@@ -72,6 +72,16 @@ impl IntensityModel for SlitModel {
         let a = p[1].abs().max(1e-6);
         vec![1.0, a, a, a, p[4].abs(), a]
     }
+
+    fn gradient(&self, p: &[f64], s: f64, u: f64, g: &mut [f64]) -> Option<(f64, f64)> {
+        let (env, denv) = super::two_slit::sinc2_and_derivative(PI * p[4] * s);
+        g[1] = env;
+        g[2] = 1.0;
+        g[3] = u;
+        g[4] = p[1] * denv * PI * s;
+        g[5] = u * u;
+        Some((p[1] * denv * PI * p[4], p[3] + 2.0 * p[5] * u))
+    }
 }
 
 /// A dark fringe located in the profile.

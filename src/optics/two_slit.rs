@@ -32,6 +32,17 @@ pub fn sinc(x: f64) -> f64 {
     }
 }
 
+/// sinc²β and its derivative 2·sinc β·(cos β − sinc β)/β (0 at β = 0).
+pub fn sinc2_and_derivative(beta: f64) -> (f64, f64) {
+    let sc = sinc(beta);
+    let d = if beta.abs() < 1e-4 {
+        -beta / 3.0
+    } else {
+        (beta.cos() - sc) / beta
+    };
+    (sc * sc, 2.0 * sc * d)
+}
+
 /// Parameter indices of [`TwoSlitModel`].
 pub mod param {
     /// Pattern centre, mm.
@@ -81,6 +92,25 @@ impl IntensityModel for TwoSlitModel {
     fn typical(&self, p: &[f64]) -> Vec<f64> {
         let a = p[1].abs().max(1e-6);
         vec![1.0, a, a, a, 0.1, p[5].abs(), p[6].abs(), 0.1, a]
+    }
+
+    fn gradient(&self, p: &[f64], s: f64, u: f64, g: &mut [f64]) -> Option<(f64, f64)> {
+        let beta = PI * p[6] * s;
+        let (env, denv) = sinc2_and_derivative(beta);
+        let psi = 2.0 * PI * p[5] * s + p[7];
+        let (sin_psi, cos_psi) = psi.sin_cos();
+        let fringes = 0.5 * (1.0 + p[4] * cos_psi);
+        let dfringes = -0.5 * p[4] * sin_psi;
+        g[1] = env * fringes;
+        g[2] = 1.0;
+        g[3] = u;
+        g[4] = p[1] * env * 0.5 * cos_psi;
+        g[5] = p[1] * env * dfringes * 2.0 * PI * s;
+        g[6] = p[1] * fringes * denv * PI * s;
+        g[7] = p[1] * env * dfringes;
+        g[8] = u * u;
+        let di_ds = p[1] * (denv * PI * p[6] * fringes + env * dfringes * 2.0 * PI * p[5]);
+        Some((di_ds, p[3] + 2.0 * p[8] * u))
     }
 }
 

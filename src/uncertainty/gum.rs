@@ -2,6 +2,7 @@
 //! sensitivity coefficients by central differences, and the uncertainty budget.
 
 use nalgebra::DMatrix;
+use rayon::prelude::*;
 
 use super::{Correlation, Input, UncertaintyError, check_inputs, check_semidefinite};
 
@@ -87,10 +88,10 @@ pub fn derivative_step(input: &Input) -> f64 {
 pub fn propagate<E>(
     inputs: &[Input],
     correlations: &[Correlation],
-    model: impl Fn(&[f64]) -> Result<Vec<f64>, E>,
+    model: impl Fn(&[f64]) -> Result<Vec<f64>, E> + Sync,
 ) -> Result<Propagation, E>
 where
-    E: From<UncertaintyError>,
+    E: From<UncertaintyError> + Send,
 {
     check_inputs(inputs)?;
     let n = inputs.len();
@@ -98,7 +99,7 @@ where
     if !correlations.is_empty() {
         check_semidefinite(&r)?;
     }
-    let mut x: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+    let x: Vec<f64> = inputs.iter().map(|i| i.value).collect();
     let y0 = model(&x)?;
     if y0.is_empty() {
         return Err(UncertaintyError::NoOutputs.into());
@@ -108,8 +109,17 @@ where
     }
     let m = y0.len();
     let mut jacobian = DMatrix::zeros(m, n);
-    for (k, input) in inputs.iter().enumerate() {
-        let column = sensitivity(&model, &mut x, k, input, &y0)?;
+    // Inputs are independent evaluations: where each is a re-fit (the profile kinds) they
+    // spread over the cores.
+    let columns: Vec<Result<Vec<f64>, E>> = (0..n)
+        .into_par_iter()
+        .map(|k| {
+            let mut xk = x.clone();
+            sensitivity(&model, &mut xk, k, &inputs[k], &y0)
+        })
+        .collect();
+    for (k, column) in columns.into_iter().enumerate() {
+        let column = column?;
         for (o, c) in column.into_iter().enumerate() {
             jacobian[(o, k)] = c;
         }
