@@ -445,10 +445,10 @@ fn base_record(kind: &str, m: &Measured, book: &InputBook) -> Record {
     record.assumptions.extend(book.assumptions.iter().cloned());
     record.assumptions.extend(m.map.assumptions.iter().cloned());
     record.assumptions.push(format!(
-        "profile averaged over {} rows across the band, {} samples ({} saturated, left out)",
+        "profile averaged over {} rows across the band, {} samples ({} clipped, fitted as lower bounds)",
         2 * m.track.half_width_px + 1,
         m.profile.x_mm.len(),
-        m.profile.used.iter().filter(|u| !**u).count()
+        m.profile.clipped.iter().filter(|c| **c).count()
     ));
     record.assumptions.push(
         "screen flat and perpendicular to the beam; Fraunhofer (far-field) diffraction".into(),
