@@ -37,11 +37,7 @@ fn photo_12mp() -> Photo12 {
     let sim = simulate::render_grating(&setup, &Scene::default(), &camera, &Effects::default(), 12)
         .expect("12 MP photo");
     sim.write(&path, 92, true).expect("written");
-    let r = sim.truth.ruler.expect("ruler");
-    let (s, e) = (r.start_px.expect("start"), r.end_px.expect("end"));
-    let p = |f: f64| [s[0] + f * (e[0] - s[0]), s[1] + f * (e[1] - s[1])];
-    let (a, b) = (p(0.05), p(0.95));
-    let ruler = format!("{:.0},{:.0},{:.0},{:.0}", a[0], a[1], b[0], b[1]);
+    let ruler = ruler_flag(sim.truth.ruler.expect("ruler"));
     Photo12 {
         _dir: dir,
         path,
@@ -69,14 +65,15 @@ fn two_slit_12mp(dir: &std::path::Path) -> (PathBuf, String) {
     )
     .expect("12 MP photo");
     sim.write(&path, 92, true).expect("written");
-    let r = sim.truth.ruler.expect("ruler");
+    (path, ruler_flag(sim.truth.ruler.expect("ruler")))
+}
+
+/// The `--ruler` flag a person would give: the true ruler's ends pulled 5 % inward.
+fn ruler_flag(r: simulate::RulerTruth) -> String {
     let (s, e) = (r.start_px.expect("start"), r.end_px.expect("end"));
     let p = |f: f64| [s[0] + f * (e[0] - s[0]), s[1] + f * (e[1] - s[1])];
     let (a, b) = (p(0.05), p(0.95));
-    (
-        path,
-        format!("{:.0},{:.0},{:.0},{:.0}", a[0], a[1], b[0], b[1]),
-    )
+    format!("{:.0},{:.0},{:.0},{:.0}", a[0], a[1], b[0], b[1])
 }
 
 fn benches(c: &mut Criterion) {
