@@ -362,3 +362,34 @@ fn wavelength_is_required_and_positive() {
     let r = b.run(&["slit", "s.png", "--distance", "2m", "--mm-per-px", "0.1"]);
     assert_eq!(r.code, 2, "{}", r.stderr);
 }
+
+/// Half the frame in shadow (room light down to 12 % beyond an edge through the
+/// pattern). The ruler lies in the dark half here, so the scale is given as the camera's
+/// known mm per px, taken square on.
+#[test]
+fn half_the_frame_in_shadow() {
+    let b = Bench::new();
+    let truth = simulate(
+        &b,
+        "two-slit",
+        "sh.jpg",
+        &["--shadow", "--camera-yaw", "0deg"],
+    );
+    let mm_per_px = format!(
+        "{}",
+        truth["ruler"]["mm_per_px_near_zero"].as_f64().unwrap()
+    );
+    let r = b.run(&[
+        "two-slit",
+        "sh.jpg",
+        "--wavelength",
+        "532nm±0.5nm",
+        "--distance",
+        "2.5m±1mm",
+        "--mm-per-px",
+        &mm_per_px,
+        "--json",
+    ]);
+    assert_within(&r, "separation", input(&truth, "separation_m"));
+    assert_within(&r, "width", input(&truth, "width_m"));
+}
