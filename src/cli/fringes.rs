@@ -114,7 +114,9 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
             .push(ResultEntry::new(name, e.value, e.u, "m", k).with_budget(budget(e)));
     }
     let x0 = sol.fit.params[two_slit::param::X0];
-    record.features.push(centre_feature(&m, x0));
+    record
+        .features
+        .push(centre_feature(&m, x0, sol.fit.u(two_slit::param::X0)));
     record.warnings.extend(sol.warnings.iter().cloned());
     record.assumptions.push(format!(
         "fringe visibility {:.2}, phase {:.2} rad; residual correlation allowed over {} samples",
@@ -184,7 +186,9 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
             .with_budget(budget(&sol.estimate)),
     );
     let x0 = sol.fit.params[slit::param::X0];
-    record.features.push(centre_feature(&m, x0));
+    record
+        .features
+        .push(centre_feature(&m, x0, sol.fit.u(slit::param::X0)));
     for min in &sol.minima {
         let (px, dir) = m.position_at(min.sample);
         let u_px = min.u_mm / m.map.mm_per_px_at(px);
@@ -460,10 +464,17 @@ fn base_record(kind: &str, m: &Measured, book: &InputBook) -> Record {
     record
 }
 
-fn centre_feature(m: &Measured, x0: f64) -> Feature {
+/// The pattern's centre, with its uncertainty along the band from the fit (mm → px).
+fn centre_feature(m: &Measured, x0: f64, u_x0_mm: f64) -> Feature {
     let px = m.px_of_x(x0);
     let mm = m.map.to_mm(px);
-    Feature::point("centre", [px.x, px.y], [0.0, 0.0], [mm.x, mm.y])
+    let u = m.band.direction.abs() * (u_x0_mm / m.map.mm_per_px_at(px));
+    Feature::point(
+        "centre",
+        [px.x, px.y],
+        [u.x.max(1e-6), u.y.max(1e-6)],
+        [mm.x, mm.y],
+    )
 }
 
 /// The fit for the record, in SI: parameters in mm are listed with `mm_params` as

@@ -7,6 +7,7 @@ use super::output::{self, Clock};
 use crate::find::FindError;
 use crate::find::axis::pattern_axis;
 use crate::find::blobs::{Blob, CoarseMap, block_size_for, coarse_map, find_blobs};
+use crate::find::colour::keep_laser_coloured;
 use crate::find::spot::{self, Spot};
 use crate::optics::grating::{self, GratingInputs, GratingSolution, Known, Mode, OrderSpot};
 use crate::photo::{Channel, Photo};
@@ -280,63 +281,6 @@ pub fn pattern_channel(
     (c, note, m)
 }
 
-/// Leaves out the candidates whose light is not the laser's. A laser is nearly
-/// monochromatic, so its spots stand out in the pattern's colour channel far more than
-/// in the other two, while a white glint, a window or a lamp brightens all three alike.
-/// Each candidate's excess over the ring around it is compared channel by channel; a
-/// candidate whose strongest other channel gains more than `MAX_CROSS_COLOUR` of the
-/// pattern channel's excess is dropped. Grey photos and `--channel luma` keep all.
-fn keep_laser_coloured(photo: &Photo, channel: Channel, blobs: &mut Vec<Blob>) {
-    let others: Vec<Channel> = match channel {
-        Channel::R => vec![Channel::G, Channel::B],
-        Channel::G => vec![Channel::R, Channel::B],
-        Channel::B => vec![Channel::R, Channel::G],
-        Channel::Luma => return,
-    };
-    if photo.channels() < 3 {
-        return;
-    }
-    let (w, h) = (photo.width(), photo.height());
-    let excess = |c: Channel, b: &Blob| -> f64 {
-        let plane = photo.plane(c);
-        let (x0, y0, x1, y1) = b.bbox;
-        let (bw, bh) = (x1 + 1 - x0, y1 + 1 - y0);
-        let (px, py) = (bw.div_ceil(2), bh.div_ceil(2));
-        let (ox0, oy0) = (x0.saturating_sub(px), y0.saturating_sub(py));
-        let (ox1, oy1) = ((x1 + px).min(w - 1), (y1 + py).min(h - 1));
-        let step = ((bw * bh) as f64 / 400.0).sqrt().ceil().max(1.0) as usize;
-        let (mut inner, mut ni, mut ring, mut nr) = (0.0, 0usize, 0.0, 0usize);
-        for y in (oy0..=oy1).step_by(step) {
-            for x in (ox0..=ox1).step_by(step) {
-                let v = f64::from(plane.get(x, y));
-                if (x0..=x1).contains(&x) && (y0..=y1).contains(&y) {
-                    inner += v;
-                    ni += 1;
-                } else {
-                    ring += v;
-                    nr += 1;
-                }
-            }
-        }
-        inner / ni.max(1) as f64 - ring / nr.max(1) as f64
-    };
-    blobs.retain(|b| {
-        let own = excess(channel, b);
-        let cross = others
-            .iter()
-            .map(|&c| excess(c, b))
-            .fold(f64::MIN, f64::max);
-        own > 0.0 && cross <= MAX_CROSS_COLOUR * own
-    });
-}
-
-/// Largest excess in another colour channel, as a share of the pattern channel's, for
-/// a candidate still taken as laser light. A laser line lies in one filter's band of a
-/// Bayer sensor, and the other two pass about a tenth of it (common practice), but a
-/// clipped core reads low in its own channel while its halo still spills into the
-/// others; white light gains alike in all three (a share near 1).
-const MAX_CROSS_COLOUR: f64 = 0.6;
-
 /// The stretch of graph paper a `--grid` scale is counted along: the pattern's own line
 /// through its spots, shifted to one side by three spot radii so their glare stays out of
 /// the band, reaching a tenth of its length beyond the outermost spots. The scale is then
@@ -398,9 +342,21 @@ fn grid_stretch(
 }
 
 /// The spot candidates of the pattern channel's coarse map that are laser light.
+/// Grey photos and `--channel luma` keep all candidates: there is no colour to judge by.
 pub(crate) fn laser_candidates(photo: &Photo, channel: Channel, cmap: &CoarseMap) -> Vec<Blob> {
     let mut blobs = find_blobs(cmap, 8.0, 60);
-    keep_laser_coloured(photo, channel, &mut blobs);
+    let others: &[Channel] = match channel {
+        Channel::R => &[Channel::G, Channel::B],
+        Channel::G => &[Channel::R, Channel::B],
+        Channel::B => &[Channel::R, Channel::G],
+        Channel::Luma => &[],
+    };
+    if photo.channels() >= 3 && !others.is_empty() {
+        let own = photo.plane(channel);
+        let planes: Vec<_> = others.iter().map(|&c| photo.plane(c)).collect();
+        let rasters: Vec<&dyn Raster> = planes.iter().map(|p| p as &dyn Raster).collect();
+        keep_laser_coloured(&own, &rasters, &mut blobs);
+    }
     blobs
 }
 

@@ -1,9 +1,11 @@
 //! Image → features in pixels with uncertainties: bright blobs on a coarse map
 //! ([`blobs`]), sub-pixel spot positions by a censored elliptical Gaussian fit
-//! ([`spot`]) and the line the spots of a pattern lie on ([`axis`]).
+//! ([`spot`]), the line the spots of a pattern lie on ([`axis`]), which candidates are
+//! laser light ([`colour`]) and the band of fringes with its profile ([`fringes`]).
 
 pub mod axis;
 pub mod blobs;
+pub mod colour;
 pub mod fringes;
 pub mod spot;
 
