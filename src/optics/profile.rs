@@ -377,10 +377,10 @@ pub struct Refit<'a> {
 }
 
 /// GUM propagation of a fit to its measurands: inputs are the wavelength, the distance,
-/// each scale component and the fitted ratios (with their covariance); a change of the
-/// distance or the scale repeats the fit, so those sensitivities are the model's own. With
-/// `monte_carlo` the first measurand is also propagated by JCGM 101 (each trial a re-fit)
-/// and the linear result validated against it.
+/// each scale component and the fitted ratios (with their covariance); the fit is repeated
+/// for changes of the distance and the scale, so those sensitivities are the model's own.
+/// With `monte_carlo` the first measurand is also propagated by JCGM 101 (each trial a
+/// re-fit) and the linear result validated against it.
 pub fn propagate(
     refit: &Refit,
     wavelength: &Input,
@@ -428,7 +428,36 @@ pub fn propagate(
             .collect();
         Ok((measurands.compute)(v[0], v[1], &ratios))
     };
-    let propagation = uncertainty::propagate(&inputs, &correlations, model_fn)?;
+    // The first-order budget needs the ratios' slope in L/k only: a sample at x on a map
+    // scaled by k, with the centre at k·x0, is seen at the angle of x at distance L/k, so
+    // distance and scale act through ρ = L/k alone. Two re-fits at ρ(1 ± ε) give that slope
+    // (central difference, error O(ε²)) for every distance and scale input at once;
+    // Monte Carlo below re-fits every trial.
+    let rho0 = nominal_distance * 1e3;
+    let eps = 1e-4;
+    let at = |rho: f64| -> Result<Vec<f64>, OpticsError> {
+        let p = (refit.again)(rho, 1.0)?;
+        Ok(measurands.ratios.iter().map(|&(i, _)| p[i]).collect())
+    };
+    let (plus, minus) = rayon::join(|| at(rho0 * (1.0 + eps)), || at(rho0 * (1.0 - eps)));
+    let (plus, minus) = (plus?, minus?);
+    let slope: Vec<f64> = plus
+        .iter()
+        .zip(&minus)
+        .map(|(a, b)| (a - b) / (2.0 * eps * rho0))
+        .collect();
+    let linear_fn = |v: &[f64]| -> Result<Vec<f64>, OpticsError> {
+        let factor: f64 = v[scale_start..fit_start].iter().product();
+        let rho = v[1] * 1e3 / factor;
+        let ratios: Vec<f64> = measurands
+            .ratios
+            .iter()
+            .enumerate()
+            .map(|(k, &(i, _))| refit.params[i] + slope[k] * (rho - rho0) + v[fit_start + k])
+            .collect();
+        Ok((measurands.compute)(v[0], v[1], &ratios))
+    };
+    let propagation = uncertainty::propagate(&inputs, &correlations, linear_fn)?;
     let estimates = propagation.outputs;
     let mc = match monte_carlo {
         Some((trials, seed)) => {
