@@ -14,11 +14,9 @@ use crate::photo::{Channel, Photo};
 use crate::quantity::{self, Dimension};
 use crate::record::overlay::Mark;
 use crate::record::plot::{ProfilePlot, write_plot};
-use crate::record::{
-    self, Feature, Fit, FitParameter, Record, RecordError, ResultEntry, ScaleInfo,
-};
+use crate::record::{Feature, Fit, FitParameter, Record, RecordError, ResultEntry};
 use crate::scale::ScreenMap;
-use crate::uncertainty::{self, Estimate, Input};
+use crate::uncertainty::{self, Input};
 use crate::{Error, ExitCode};
 use clap::Args;
 use nalgebra::Vector2;
@@ -109,9 +107,9 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
         ("width", &sol.width),
         ("fringe_period", &sol.fringe_period),
     ] {
-        record
-            .results
-            .push(ResultEntry::new(name, e.value, e.u, "m", k).with_budget(budget(e)));
+        record.results.push(
+            ResultEntry::new(name, e.value, e.u, "m", k).with_budget(output::budget_lines(e)),
+        );
     }
     let x0 = sol.fit.params[two_slit::param::X0];
     record
@@ -183,7 +181,7 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
     let k = uncertainty::K_95;
     record.results.push(
         ResultEntry::new(sol.measurand, sol.estimate.value, sol.estimate.u, "m", k)
-            .with_budget(budget(&sol.estimate)),
+            .with_budget(output::budget_lines(&sol.estimate)),
     );
     let x0 = sol.fit.params[slit::param::X0];
     record
@@ -432,18 +430,7 @@ fn grid_stretch(
 }
 
 fn base_record(kind: &str, m: &Measured, book: &InputBook) -> Record {
-    let h = m.map.homography();
-    let mm_per_px = m.map.mm_per_px();
-    let mut scale = ScaleInfo::new(m.map.method.name(), mm_per_px, mm_per_px * m.map.u_rel())
-        .with_homography([
-            [h[(0, 0)], h[(0, 1)], h[(0, 2)]],
-            [h[(1, 0)], h[(1, 1)], h[(1, 2)]],
-            [h[(2, 0)], h[(2, 1)], h[(2, 2)]],
-        ]);
-    if let Some(r) = m.map.residual_px {
-        scale = scale.with_residual_px(r);
-    }
-    let mut record = Record::new(kind, m.photo.info.clone(), scale);
+    let mut record = Record::new(kind, m.photo.info.clone(), output::scale_info(&m.map));
     record.setup.inputs = book.record.clone();
     record.warnings.extend(m.map.warnings.iter().cloned());
     record.assumptions.extend(book.assumptions.iter().cloned());
@@ -513,23 +500,11 @@ fn fit_entry<M: IntensityModel>(
     }
 }
 
-fn budget(e: &Estimate) -> Vec<record::BudgetLine> {
-    e.budget
-        .iter()
-        .map(|b| record::BudgetLine::new(&b.input, b.sensitivity, b.contribution))
-        .collect()
-}
-
 fn mc_note(record: &mut Record, mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>) {
     if let Some((mc, v)) = mc {
-        record.assumptions.push(format!(
-            "Monte Carlo (JCGM 101) check of the first result: mean {:.6e}, u {:.2e}, 95 % interval [{:.6e}, {:.6e}] m; {}",
-            mc.mean,
-            mc.u,
-            mc.low,
-            mc.high,
-            if v.agrees { "agrees with the linear budget" } else { "differs from the linear budget" }
-        ));
+        record
+            .assumptions
+            .push(output::monte_carlo_note(" of the first result", mc, v));
     }
 }
 

@@ -14,7 +14,7 @@ use crate::photo::{Channel, Photo};
 use crate::quantity::{self, Dimension};
 use crate::raster::Raster;
 use crate::record::overlay::Mark;
-use crate::record::{self, Feature, Fit, FitParameter, Record, ResultEntry, ScaleInfo};
+use crate::record::{Feature, Fit, FitParameter, Record, ResultEntry};
 use crate::scale::{ScaleMethod, ScreenMap};
 use crate::uncertainty::{self, Input};
 use crate::{Error, ExitCode};
@@ -525,13 +525,6 @@ fn order_label(m: i32) -> String {
     }
 }
 
-fn budget(e: &uncertainty::Estimate) -> Vec<record::BudgetLine> {
-    e.budget
-        .iter()
-        .map(|b| record::BudgetLine::new(&b.input, b.sensitivity, b.contribution))
-        .collect()
-}
-
 fn build_record(
     photo: &Photo,
     book: &InputBook,
@@ -541,18 +534,7 @@ fn build_record(
     inputs: &GratingInputs,
     channel_note: String,
 ) -> Record {
-    let h = map.homography();
-    let mm_per_px = map.mm_per_px();
-    let mut scale = ScaleInfo::new(map.method.name(), mm_per_px, mm_per_px * map.u_rel())
-        .with_homography([
-            [h[(0, 0)], h[(0, 1)], h[(0, 2)]],
-            [h[(1, 0)], h[(1, 1)], h[(1, 2)]],
-            [h[(2, 0)], h[(2, 1)], h[(2, 2)]],
-        ]);
-    if let Some(r) = map.residual_px {
-        scale = scale.with_residual_px(r);
-    }
-    let mut record = Record::new("grating", photo.info.clone(), scale);
+    let mut record = Record::new("grating", photo.info.clone(), output::scale_info(map));
     record.setup.inputs = book.record.clone();
     record.features = found
         .spots
@@ -610,7 +592,7 @@ fn build_record(
     let k = uncertainty::K_95;
     record.results.push(
         ResultEntry::new(sol.measurand, sol.estimate.value, sol.estimate.u, "m", k)
-            .with_budget(budget(&sol.estimate)),
+            .with_budget(output::budget_lines(&sol.estimate)),
     );
     if sol.measurand == "pitch" {
         record.results.push(
@@ -621,7 +603,7 @@ fn build_record(
                 "1/m",
                 k,
             )
-            .with_budget(budget(&sol.line_density)),
+            .with_budget(output::budget_lines(&sol.line_density)),
         );
     }
     record.warnings.extend(map.warnings.iter().cloned());
@@ -638,14 +620,7 @@ fn build_record(
         .push("camera lens distortion negligible over the pattern".to_string());
     record.assumptions.push(channel_note);
     if let Some((mc, v)) = &sol.monte_carlo {
-        record.assumptions.push(format!(
-            "Monte Carlo (JCGM 101) check: mean {:.6e}, u {:.2e}, 95 % interval [{:.6e}, {:.6e}] m; {}",
-            mc.mean,
-            mc.u,
-            mc.low,
-            mc.high,
-            if v.agrees { "agrees with the linear budget" } else { "differs from the linear budget" }
-        ));
+        record.assumptions.push(output::monte_carlo_note("", mc, v));
     }
     if sol.small_angle_error.abs() > 1e-4 {
         record.assumptions.push(format!(

@@ -266,3 +266,47 @@ pub fn emit_with_plot(
     }
     Ok(ExitCode::Measured)
 }
+
+/// The record's scale block: method, mm per px with its uncertainty, homography, residual.
+pub fn scale_info(map: &ScreenMap) -> record::ScaleInfo {
+    let h = map.homography();
+    let mm_per_px = map.mm_per_px();
+    let scale = record::ScaleInfo::new(map.method.name(), mm_per_px, mm_per_px * map.u_rel())
+        .with_homography([
+            [h[(0, 0)], h[(0, 1)], h[(0, 2)]],
+            [h[(1, 0)], h[(1, 1)], h[(1, 2)]],
+            [h[(2, 0)], h[(2, 1)], h[(2, 2)]],
+        ]);
+    match map.residual_px {
+        Some(r) => scale.with_residual_px(r),
+        None => scale,
+    }
+}
+
+/// An estimate's budget as the record's lines.
+pub fn budget_lines(e: &crate::uncertainty::Estimate) -> Vec<record::BudgetLine> {
+    e.budget
+        .iter()
+        .map(|b| record::BudgetLine::new(&b.input, b.sensitivity, b.contribution))
+        .collect()
+}
+
+/// The assumption line that reports a Monte Carlo check of `what`.
+pub fn monte_carlo_note(
+    what: &str,
+    mc: &crate::uncertainty::McEstimate,
+    v: &crate::uncertainty::Validation,
+) -> String {
+    format!(
+        "Monte Carlo (JCGM 101) check{what}: mean {:.6e}, u {:.2e}, 95 % interval [{:.6e}, {:.6e}] m; {}",
+        mc.mean,
+        mc.u,
+        mc.low,
+        mc.high,
+        if v.agrees {
+            "agrees with the linear budget"
+        } else {
+            "differs from the linear budget"
+        }
+    )
+}
