@@ -351,6 +351,89 @@ pub fn cost_at<M: IntensityModel>(
         .sum()
 }
 
+/// The input's value, or an error naming it unless it is positive and finite.
+pub fn positive(i: &Input, name: &str) -> Result<f64, OpticsError> {
+    if i.value > 0.0 && i.value.is_finite() {
+        Ok(i.value)
+    } else {
+        Err(OpticsError::BadInput(format!(
+            "{name} must be > 0, got {}",
+            i.value
+        )))
+    }
+}
+
+/// The warning for a Monte Carlo check that disagrees with the linear budget, if it does.
+pub fn monte_carlo_warning(mc: &Option<(McEstimate, Validation)>) -> Option<String> {
+    mc.as_ref().filter(|(_, v)| !v.agrees).map(|_| {
+        "the Monte Carlo interval differs from the linear budget's: prefer the Monte Carlo \
+         interval"
+            .to_string()
+    })
+}
+
+/// sinc x = sin x / x, 1 at 0.
+pub fn sinc(x: f64) -> f64 {
+    if x.abs() < 1e-4 {
+        1.0 - x * x / 6.0
+    } else {
+        x.sin() / x
+    }
+}
+
+/// sinc²β and its derivative 2·sinc β·(cos β − sinc β)/β (0 at β = 0).
+pub fn sinc2_and_derivative(beta: f64) -> (f64, f64) {
+    let sc = sinc(beta);
+    let d = if beta.abs() < 1e-4 {
+        -beta / 3.0
+    } else {
+        (beta.cos() - sc) / beta
+    };
+    (sc * sc, 2.0 * sc * d)
+}
+
+/// The model at positions `x_mm`.
+pub fn evaluate<M: IntensityModel>(
+    model: &M,
+    p: &[f64],
+    x_mm: &[f64],
+    distance_mm: f64,
+) -> Vec<f64> {
+    x_mm.iter()
+        .map(|&x| {
+            model.intensity(
+                p,
+                sine_of_angle(x, p[0], distance_mm),
+                (x - p[0]) / distance_mm,
+            )
+        })
+        .collect()
+}
+
+/// Median spacing of the samples, mm.
+pub fn median_step(x: &[f64]) -> f64 {
+    let mut d: Vec<f64> = x.windows(2).map(|w| (w[1] - w[0]).abs()).collect();
+    if d.is_empty() {
+        return 1.0;
+    }
+    let mid = d.len() / 2;
+    *d.select_nth_unstable_by(mid, f64::total_cmp).1
+}
+
+/// Least squares y ≈ a·f + b.
+pub fn linear_two(f: &[f64], y: &[f64]) -> Option<(f64, f64)> {
+    let n = f.len() as f64;
+    let (sf, sy) = (f.iter().sum::<f64>(), y.iter().sum::<f64>());
+    let sff: f64 = f.iter().map(|v| v * v).sum();
+    let sfy: f64 = f.iter().zip(y).map(|(a, b)| a * b).sum();
+    let det = n * sff - sf * sf;
+    if !(det.abs() > 1e-300) {
+        return None;
+    }
+    let a = (n * sfy - sf * sy) / det;
+    Some((a, (sy - a * sf) / n))
+}
+
 /// Measurands (SI) from (wavelength m, distance m, the fitted ratios).
 pub type MeasurandFn<'a> = &'a (dyn Fn(f64, f64, &[f64]) -> Vec<f64> + Sync);
 

@@ -14,9 +14,9 @@
 
 use super::OpticsError;
 use super::profile::{
-    self, FringeProfile, IntensityModel, Measurands, ProfileFit, Refit, fit_profile, sine_of_angle,
+    self, FringeProfile, IntensityModel, Measurands, ProfileFit, Refit, evaluate, fit_profile,
+    linear_two, median_step, positive, sinc, sinc2_and_derivative, sine_of_angle,
 };
-use super::two_slit::{linear_two, median_step, sinc};
 use crate::fit::FitError;
 use crate::fit::lm::{LeastSquares, LmOptions, minimize};
 use crate::scale::ScreenMap;
@@ -74,7 +74,7 @@ impl IntensityModel for SlitModel {
     }
 
     fn gradient(&self, p: &[f64], s: f64, u: f64, g: &mut [f64]) -> Option<(f64, f64)> {
-        let (env, denv) = super::two_slit::sinc2_and_derivative(PI * p[4] * s);
+        let (env, denv) = sinc2_and_derivative(PI * p[4] * s);
         g[1] = env;
         g[2] = 1.0;
         g[3] = u;
@@ -141,14 +141,8 @@ pub fn solve(
     inputs: &SlitInputs,
     monte_carlo: Option<(usize, u64)>,
 ) -> Result<SlitSolution, OpticsError> {
-    let l = inputs.distance.value * 1e3;
-    for (name, v) in [("distance", l), ("wavelength", inputs.wavelength.value)] {
-        if !(v > 0.0 && v.is_finite()) {
-            return Err(OpticsError::BadInput(format!(
-                "{name} must be > 0, got {v}"
-            )));
-        }
-    }
+    let l = positive(&inputs.distance, "distance")? * 1e3;
+    positive(&inputs.wavelength, "wavelength")?;
     let n = profile.x_mm.len();
     if n < 30 || (0..n).filter(|&i| profile.exact(i)).count() < 30 {
         return Err(OpticsError::Unsolvable(
@@ -335,16 +329,8 @@ pub fn solve(
             diff / u_diff.max(f64::MIN_POSITIVE)
         ));
     }
-    if let Some((_, v)) = &monte_carlo {
-        if !v.agrees {
-            warnings.push(
-                "the Monte Carlo interval differs from the linear budget's: prefer the Monte \
-                 Carlo interval"
-                    .into(),
-            );
-        }
-    }
-    let model_values = super::two_slit::evaluate(&model, &params, &profile.x_mm, l);
+    warnings.extend(profile::monte_carlo_warning(&monte_carlo));
+    let model_values = evaluate(&model, &params, &profile.x_mm, l);
     let fit = ProfileFit { params, ..fit };
     Ok(SlitSolution {
         measurand,

@@ -15,33 +15,14 @@
 
 use super::OpticsError;
 use super::profile::{
-    self, FringeProfile, IntensityModel, Measurands, ProfileFit, Refit, fit_profile, sine_of_angle,
+    self, FringeProfile, IntensityModel, Measurands, ProfileFit, Refit, evaluate, fit_profile,
+    linear_two, median_step, positive, sinc, sinc2_and_derivative, sine_of_angle,
 };
 use crate::fit::spectral::PeriodEstimator;
 use crate::scale::ScreenMap;
 use crate::uncertainty::{Estimate, Input, McEstimate, Validation};
 use rayon::prelude::*;
 use std::f64::consts::PI;
-
-/// sinc x = sin x / x, 1 at 0.
-pub fn sinc(x: f64) -> f64 {
-    if x.abs() < 1e-4 {
-        1.0 - x * x / 6.0
-    } else {
-        x.sin() / x
-    }
-}
-
-/// sinc²β and its derivative 2·sinc β·(cos β − sinc β)/β (0 at β = 0).
-pub fn sinc2_and_derivative(beta: f64) -> (f64, f64) {
-    let sc = sinc(beta);
-    let d = if beta.abs() < 1e-4 {
-        -beta / 3.0
-    } else {
-        (beta.cos() - sc) / beta
-    };
-    (sc * sc, 2.0 * sc * d)
-}
 
 /// Parameter indices of [`TwoSlitModel`].
 pub mod param {
@@ -321,15 +302,7 @@ pub fn solve(
             "propagation returned too few outputs".into(),
         ));
     };
-    if let Some((_, v)) = &monte_carlo {
-        if !v.agrees {
-            warnings.push(
-                "the Monte Carlo interval differs from the linear budget's: prefer the Monte \
-                 Carlo interval"
-                    .into(),
-            );
-        }
-    }
+    warnings.extend(profile::monte_carlo_warning(&monte_carlo));
     let model_values = evaluate(&model, &fit.params, &profile.x_mm, distance_mm);
     Ok(TwoSlitSolution {
         separation,
@@ -340,44 +313,6 @@ pub fn solve(
         monte_carlo,
         warnings,
     })
-}
-
-/// The model at positions `x_mm`.
-pub fn evaluate<M: IntensityModel>(
-    model: &M,
-    p: &[f64],
-    x_mm: &[f64],
-    distance_mm: f64,
-) -> Vec<f64> {
-    x_mm.iter()
-        .map(|&x| {
-            model.intensity(
-                p,
-                sine_of_angle(x, p[0], distance_mm),
-                (x - p[0]) / distance_mm,
-            )
-        })
-        .collect()
-}
-
-fn positive(i: &Input, name: &str) -> Result<f64, OpticsError> {
-    if i.value > 0.0 && i.value.is_finite() {
-        Ok(i.value)
-    } else {
-        Err(OpticsError::BadInput(format!(
-            "{name} must be > 0, got {}",
-            i.value
-        )))
-    }
-}
-
-pub(crate) fn median_step(x: &[f64]) -> f64 {
-    let mut d: Vec<f64> = x.windows(2).map(|w| (w[1] - w[0]).abs()).collect();
-    if d.is_empty() {
-        return 1.0;
-    }
-    let mid = d.len() / 2;
-    *d.select_nth_unstable_by(mid, f64::total_cmp).1
 }
 
 /// A fit is physical when the slit is narrower than the separation and the fringes are
@@ -455,20 +390,6 @@ fn start_values(x: &[f64], y: &[f64], distance_mm: f64, period_mm: f64) -> Vec<f
         }
     }
     best.1
-}
-
-/// Least squares y ≈ a·f + b.
-pub(crate) fn linear_two(f: &[f64], y: &[f64]) -> Option<(f64, f64)> {
-    let n = f.len() as f64;
-    let (sf, sy) = (f.iter().sum::<f64>(), y.iter().sum::<f64>());
-    let sff: f64 = f.iter().map(|v| v * v).sum();
-    let sfy: f64 = f.iter().zip(y).map(|(a, b)| a * b).sum();
-    let det = n * sff - sf * sf;
-    if !(det.abs() > 1e-300) {
-        return None;
-    }
-    let a = (n * sfy - sf * sy) / det;
-    Some((a, (sy - a * sf) / n))
 }
 
 #[cfg(test)]
