@@ -5,8 +5,8 @@ use super::args::{LASER_CAUTION, OutputArgs, PhotoArgs, ScaleArgs};
 use super::grating::{laser_candidates, pattern_channel};
 use super::inputs::{DefaultU, InputBook, positive_flag};
 use super::output::{self, Clock};
-use crate::find::FindError;
 use crate::find::fringes::{FringeBand, FringeTrack, fringe_band, fringe_track};
+use crate::find::{FindError, trim_span};
 use crate::optics::profile::{FringeProfile, IntensityModel, ProfileFit};
 use crate::optics::slit::{self, Obstacle, SlitInputs, SlitModel};
 use crate::optics::two_slit::{self, TwoSlitInputs, TwoSlitModel};
@@ -412,13 +412,7 @@ fn grid_stretch(
     let span = hi - lo;
     let offset = 4.0 * band.sigma_across_px + 15.0;
     for o in [offset, -offset] {
-        let (mut a, mut b) = (lo - 0.5 * span, hi + 0.5 * span);
-        while a < b && !inside(band.at(a, o)) {
-            a += 1.0;
-        }
-        while b > a && !inside(band.at(b, o)) {
-            b -= 1.0;
-        }
+        let (a, b) = trim_span(lo - 0.5 * span, hi + 0.5 * span, |t| inside(band.at(t, o)));
         if b - a >= 0.5 * span && b - a >= 30.0 {
             return Ok((band.at(a, o), band.at(b, o)));
         }

@@ -4,11 +4,11 @@
 use super::args::{OutputArgs, PhotoArgs, ScaleArgs};
 use super::inputs::{DefaultU, InputBook, parse_flag, positive_flag};
 use super::output::{self, Clock};
-use crate::find::FindError;
 use crate::find::axis::pattern_axis;
 use crate::find::blobs::{Blob, CoarseMap, block_size_for, coarse_map, find_blobs};
 use crate::find::colour::keep_laser_coloured;
 use crate::find::spot::{self, Spot};
+use crate::find::{FindError, trim_span};
 use crate::optics::grating::{self, GratingInputs, GratingSolution, Known, Mode, OrderSpot};
 use crate::photo::{Channel, Photo};
 use crate::quantity::{self, Dimension};
@@ -324,13 +324,7 @@ fn grid_stretch(
     // Clip the stretch to the frame along the line, on whichever side has room.
     for offset in [side, -side] {
         let at = |s: f64| line.point + line.direction * s + offset;
-        let (mut a, mut b) = (lo - margin, hi + margin);
-        while a < b && !inside(at(a)) {
-            a += 1.0;
-        }
-        while b > a && !inside(at(b)) {
-            b -= 1.0;
-        }
+        let (a, b) = trim_span(lo - margin, hi + margin, |t| inside(at(t)));
         if b - a >= 0.5 * (hi - lo) && b - a >= 30.0 {
             return Ok((at(a), at(b)));
         }

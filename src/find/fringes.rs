@@ -273,13 +273,7 @@ pub fn fringe_track(raster: &dyn Raster, band: &FringeBand) -> FringeTrack {
         })
     };
     let reach = w.hypot(h);
-    let (mut a, mut b) = (lo - reach, hi + reach);
-    while a < b && !inside(a) {
-        a += 1.0;
-    }
-    while b > a && !inside(b) {
-        b -= 1.0;
-    }
+    let (a, b) = super::trim_span(lo - reach, hi + reach, inside);
     // The mean across-band shape, to judge each sample's scatter against.
     let rows = 2 * half + 1;
     let shape: Vec<f64> = (0..rows)

@@ -21,3 +21,15 @@ pub enum FindError {
     #[error("{0}")]
     Unmeasurable(String),
 }
+
+/// The stretch [a, b] shrunk from both ends, a pixel at a time, to where `keep` holds (e.g.
+/// where a line offset from the pattern stays inside the frame). Empty (a ≥ b) if nowhere.
+pub fn trim_span(mut a: f64, mut b: f64, keep: impl Fn(f64) -> bool) -> (f64, f64) {
+    while a < b && !keep(a) {
+        a += 1.0;
+    }
+    while b > a && !keep(b) {
+        b -= 1.0;
+    }
+    (a, b)
+}
