@@ -12,6 +12,7 @@
 //! wave, and the undiffracted beam goes on as a beam (see [`super::fringes`]).
 
 use super::SimError;
+use super::farfield::check;
 use rustfft::{FftPlanner, num_complex::Complex};
 use serde::{Deserialize, Serialize};
 
@@ -206,18 +207,6 @@ impl ApertureSetup {
             a * a / (l * d) <= 0.5,
             "far enough for the far field: (aperture extent)² / (wavelength · distance) ≤ 0.5",
         )
-    }
-}
-
-fn check(name: &'static str, value: f64, ok: bool, expected: &'static str) -> Result<(), SimError> {
-    if value.is_finite() && ok {
-        Ok(())
-    } else {
-        Err(SimError::BadInput {
-            name,
-            value,
-            expected,
-        })
     }
 }
 

@@ -64,7 +64,14 @@ impl Default for GratingSetup {
     }
 }
 
-fn check(name: &'static str, value: f64, ok: bool, expected: &'static str) -> Result<(), SimError> {
+/// Passes a finite `value` for which `ok` holds; else a `BadInput` naming the input and the
+/// accepted range.
+pub(super) fn check(
+    name: &'static str,
+    value: f64,
+    ok: bool,
+    expected: &'static str,
+) -> Result<(), SimError> {
     if value.is_finite() && ok {
         Ok(())
     } else {
