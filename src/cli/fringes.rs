@@ -99,7 +99,6 @@ pub fn run_two_slit(args: &TwoSlitArgs) -> Result<ExitCode, Error> {
         "two slits: I = B + B′·u + B″·u² + I0·sinc²(π a s/λ)·(1 + V·cos(2π d s/λ + φ))/2, u = (x − x0)/L, s = sin atan u",
         &TwoSlitModel,
         &sol.fit,
-        &[(two_slit::param::X0, 1e-3)],
     ));
     let k = uncertainty::K_95;
     for (name, e) in [
@@ -176,7 +175,6 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
         "slit: I = B + B′·u + B″·u² + I0·sinc²(π a s/λ), u = (x − x0)/L, s = sin atan u",
         &SlitModel,
         &sol.fit,
-        &[(slit::param::X0, 1e-3)],
     ));
     let k = uncertainty::K_95;
     record.results.push(
@@ -458,21 +456,11 @@ fn centre_feature(m: &Measured, x0: f64, u_x0_mm: f64) -> Feature {
     )
 }
 
-/// The fit for the record, in SI: parameters in mm are listed with `mm_params` as
-/// (index, factor to SI).
-fn fit_entry<M: IntensityModel>(
-    text: &str,
-    model: &M,
-    fit: &ProfileFit,
-    mm_params: &[(usize, f64)],
-) -> Fit {
+/// The fit for the record, in SI: every profile model's parameter 0 is the centre in mm
+/// (the [`IntensityModel`] convention); the others carry no length and stay as fitted.
+fn fit_entry<M: IntensityModel>(text: &str, model: &M, fit: &ProfileFit) -> Fit {
     let n = fit.params.len();
-    let factor = |i: usize| {
-        mm_params
-            .iter()
-            .find(|(j, _)| *j == i)
-            .map_or(1.0, |(_, f)| *f)
-    };
+    let factor = |i: usize| if i == 0 { 1e-3 } else { 1.0 };
     Fit {
         model: text.to_string(),
         parameters: (0..n)
