@@ -1,12 +1,14 @@
 //! Image → features in pixels with uncertainties: bright blobs on a coarse map
 //! ([`blobs`]), sub-pixel spot positions by a censored elliptical Gaussian fit
 //! ([`spot`]), the line the spots of a pattern lie on ([`axis`]), which candidates are
-//! laser light ([`colour`]) and the band of fringes with its profile ([`fringes`]).
+//! laser light ([`colour`]), the band of fringes with its profile ([`fringes`]) and the
+//! centre and radial profile of ring patterns ([`rings`]).
 
 pub mod axis;
 pub mod blobs;
 pub mod colour;
 pub mod fringes;
+pub mod rings;
 pub mod spot;
 
 use thiserror::Error;
