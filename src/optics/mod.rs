@@ -2,7 +2,9 @@
 //! each solver takes feature positions with their uncertainties, the screen map and the
 //! experiment's inputs, and returns results with GUM budgets.
 
+pub mod airy;
 pub mod grating;
+pub mod pinhole;
 pub mod profile;
 pub mod slit;
 pub mod two_slit;

@@ -333,6 +333,45 @@ pub fn fit_profile<M: IntensityModel>(
     })
 }
 
+/// [`fit_profile`] with the centre held at `start[0]`: a radial profile's samples are
+/// radii, so its centre is their origin, not a parameter. The covariance keeps the full
+/// parameter layout, with a zero row and column for the centre.
+pub fn fit_profile_fixed_centre<M: IntensityModel>(
+    model: &M,
+    samples: &Samples,
+    distance_mm: f64,
+    scale: f64,
+    start: &[f64],
+    name: &'static str,
+) -> Result<ProfileFit, FitError> {
+    let problem = FixedCentre {
+        inner: Problem {
+            model,
+            samples,
+            distance_mm,
+            scale,
+        },
+        x0: start[0],
+    };
+    let report = minimize(&problem, &start[1..], &options(), name)?;
+    let k = start.len() - 1;
+    let mut jac = DMatrix::zeros(samples.len(), k);
+    problem.jacobian(&report.params, &report.residuals, &mut jac);
+    let lags = correlation_lags(&report.residuals);
+    let inner = sandwich_covariance(&jac, &report.residuals, lags)
+        .ok_or(FitError::Singular { model: name })?;
+    let mut covariance = DMatrix::zeros(k + 1, k + 1);
+    covariance.view_mut((1, 1), (k, k)).copy_from(&inner);
+    Ok(ProfileFit {
+        params: problem.full(&report.params),
+        covariance,
+        rms_residual: (report.cost / samples.len() as f64).sqrt(),
+        points: samples.len(),
+        lags,
+        cost: report.cost,
+    })
+}
+
 /// Cost of `model` at `p` over the samples, without fitting.
 pub fn cost_at<M: IntensityModel>(
     model: &M,
