@@ -255,12 +255,12 @@ pub fn run_slit(args: &SlitArgs) -> Result<ExitCode, Error> {
     )
 }
 
-fn monte_carlo(out: &OutputArgs) -> Option<(usize, u64)> {
+pub(super) fn monte_carlo(out: &OutputArgs) -> Option<(usize, u64)> {
     out.monte_carlo.map(|n| (n, 0x05ee_d0ff_1e1d))
 }
 
 /// Output checks and the physics inputs, before the photo is read.
-fn start(
+pub(super) fn start(
     physics: &FringeInputArgs,
     out: &OutputArgs,
     photo: &PhotoArgs,
@@ -458,7 +458,7 @@ fn centre_feature(m: &Measured, x0: f64, u_x0_mm: f64) -> Feature {
 
 /// The fit for the record, in SI: every profile model's parameter 0 is the centre in mm
 /// (the [`IntensityModel`] convention); the others carry no length and stay as fitted.
-fn fit_entry<M: IntensityModel>(text: &str, model: &M, fit: &ProfileFit) -> Fit {
+pub(super) fn fit_entry<M: IntensityModel>(text: &str, model: &M, fit: &ProfileFit) -> Fit {
     let n = fit.params.len();
     let factor = |i: usize| if i == 0 { 1e-3 } else { 1.0 };
     Fit {
@@ -482,7 +482,7 @@ fn fit_entry<M: IntensityModel>(text: &str, model: &M, fit: &ProfileFit) -> Fit 
     }
 }
 
-fn mc_note(record: &mut Record, mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>) {
+pub(super) fn mc_note(record: &mut Record, mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>) {
     if let Some((mc, v)) = mc {
         record
             .assumptions

@@ -6,6 +6,7 @@ pub mod fringes;
 pub mod grating;
 pub mod inputs;
 pub mod output;
+pub mod rings;
 pub mod setup;
 pub mod simulate;
 pub mod tools;
@@ -46,6 +47,9 @@ pub enum Command {
     /// Width of a slit, or with --wire a wire's diameter, from its fringes and minima
     #[command(after_long_help = args::LASER_CAUTION)]
     Slit(fringes::SlitArgs),
+    /// Diameter of a pinhole from its Airy rings
+    #[command(after_long_help = args::LASER_CAUTION)]
+    Pinhole(rings::PinholeArgs),
     /// Render a synthetic photo with known truth (PHOTO.truth.json beside it)
     Simulate(simulate::SimulateArgs),
     /// Simulate a grating photo, measure it, and say where the files went
@@ -62,6 +66,7 @@ pub fn run(cli: Cli) -> Result<ExitCode, Error> {
         Command::Grating(a) => grating::run(&a),
         Command::TwoSlit(a) => fringes::run_two_slit(&a),
         Command::Slit(a) => fringes::run_slit(&a),
+        Command::Pinhole(a) => rings::run_pinhole(&a),
         Command::Simulate(a) => simulate::run(&a),
         Command::Demo(a) => tools::demo(&a),
         Command::Schema => {

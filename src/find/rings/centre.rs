@@ -12,6 +12,7 @@ use crate::find::FindError;
 use crate::raster::Raster;
 use crate::scale::ScreenMap;
 use nalgebra::{Matrix2, Matrix3, Vector2, Vector3};
+use std::f64::consts::PI;
 
 /// A refined ring centre.
 #[derive(Debug, Clone)]
@@ -50,10 +51,15 @@ pub fn refine_centre(
     annulus: Annulus,
 ) -> Result<RingCentre, FindError> {
     let mm_px = map.mm_per_px_at(map.to_px(start_mm));
+    // Enough pixels per pass for the shape of the rings, not every one: about 1.5 million.
+    let area_px = PI * (annulus.outer_mm / mm_px).powi(2);
+    let frame = (raster.width() * raster.height()) as f64;
+    let stride = (area_px.min(frame) / 1.5e6).sqrt().ceil().max(1.0) as usize;
     let opts = RadialOptions {
         sectors: SECTORS,
-        bin_mm: 0.5 * mm_px,
+        bin_mm: 0.5 * mm_px * stride as f64,
         r_max_mm: annulus.outer_mm,
+        stride,
     };
     let mut centre = start_mm;
     let mut last = None;
