@@ -121,7 +121,12 @@ impl ParticleSetup {
             "at most a tenth of the beam diameter",
         )?;
         let s = self.spread;
-        check("spread", s, (0.0..=0.5).contains(&s), "0 to 50 % of the mean")?;
+        check(
+            "spread",
+            s,
+            (0.0..=0.5).contains(&s),
+            "0 to 50 % of the mean",
+        )?;
         let n = self.samples;
         check(
             "samples",
@@ -351,8 +356,14 @@ pub(crate) fn far_field(
     let fold = |k: i64| k.rem_euclid(n as i64) as usize;
     for (&d, &p) in particles.diameters_m.iter().zip(&particles.centres_m) {
         let r = 0.5 * d;
-        let (i0, i1) = (((p[0] - r) / dx).floor() as i64, ((p[0] + r) / dx).ceil() as i64);
-        let (j0, j1) = (((p[1] - r) / dx).floor() as i64, ((p[1] + r) / dx).ceil() as i64);
+        let (i0, i1) = (
+            ((p[0] - r) / dx).floor() as i64,
+            ((p[0] + r) / dx).ceil() as i64,
+        );
+        let (j0, j1) = (
+            ((p[1] - r) / dx).floor() as i64,
+            ((p[1] + r) / dx).ceil() as i64,
+        );
         for j in j0..=j1 {
             for i in i0..=i1 {
                 let c = cover([i as f64 * dx, j as f64 * dx], dx, p, r);
@@ -363,7 +374,9 @@ pub(crate) fn far_field(
             }
         }
     }
-    // The beam's amplitude over the cover, and the blocked power.
+    // The beam's amplitude over the cover, and the blocked power: each cell blocks in
+    // proportion to its covered area (its box-filtered amplitude, squared, would
+    // undercount the rims: that part of the power goes beyond the sampled directions).
     let beam = |j: usize| (-(signed(j) * dx / w).powi(2)).exp();
     let beam_1d: Vec<f64> = (0..n).map(beam).collect();
     let beam_power: f64 = beam_1d.iter().map(|g| g * g).sum::<f64>().powi(2) * dx * dx;
@@ -376,7 +389,7 @@ pub(crate) fn far_field(
             for (x, c) in row.iter_mut().enumerate() {
                 if c.re > 0.0 {
                     let g = gy * beam_1d[x];
-                    b += (g * c.re as f64).powi(2);
+                    b += g * g * c.re as f64;
                     c.re = (g * c.re as f64) as f32;
                 }
             }
@@ -454,15 +467,17 @@ mod tests {
     #[test]
     fn the_halo_carries_the_blocked_power() {
         // Babinet (Born & Wolf, Principles of Optics, §8.3.2) with Parseval: the diffracted
-        // wave carries what the particles take from the beam, all of it within the
-        // propagating directions resolved here but for the far tails.
+        // wave carries what the particles take from the beam. The transform holds all of it
+        // but the far tails beyond sin θ ≈ 0.37 here (for one 8 µm disc in red light about
+        // 2/(πx) ≈ 4 % at x = πD sin θ/λ ≈ 14, the Airy pattern's encircled energy, Born &
+        // Wolf §8.5.2, from memory) and the cells' roll-off near the sampling limit.
         let setup = small();
         let p = draw(&setup, 3);
         let ff = far_field(&setup, &p).unwrap();
         let total: f64 =
             ff.intensity.iter().map(|&v| v as f64).sum::<f64>() * ff.dalpha * ff.dalpha;
         assert!(
-            (total - ff.blocked).abs() < 0.03 * ff.blocked,
+            total < ff.blocked && total > 0.88 * ff.blocked,
             "{total} vs {}",
             ff.blocked
         );
@@ -479,7 +494,7 @@ mod tests {
             .sum::<f64>()
             / (0.5 * std::f64::consts::PI * w * w);
         assert!(
-            (ff.blocked - expected).abs() < 0.05 * expected,
+            (ff.blocked - expected).abs() < 0.01 * expected,
             "{} vs {expected}",
             ff.blocked
         );

@@ -231,7 +231,8 @@ pub(crate) fn pinhole(p: PinholeParts) -> Result<PinholeTruth, SimError> {
     let v = view(p.scene, p.rendered);
     let cam = &p.rendered.camera;
     let l_mm = p.setup.distance_m * 1e3;
-    let level = |r_mm: f64| p.effects.overexposure * p.map.irradiance(r_mm, 0.0) / p.reference_per_mm2;
+    let level =
+        |r_mm: f64| p.effects.overexposure * p.map.irradiance(r_mm, 0.0) / p.reference_per_mm2;
     let point = |ring: &Ring| -> Result<RingPoint, SimError> {
         let radius_mm = radius_at(ring.rho, l_mm).ok_or_else(|| {
             SimError::NoOrderReachesScreen(format!("ring {} misses the screen", ring.index))

@@ -98,9 +98,11 @@ pub fn configure_particles(a: &SimulateArgs) -> Result<ParticleSetup, Error> {
     })
 }
 
-/// Renders and writes a pinhole or particle photo; `None` for the other kinds. Returns the
-/// ruler and the notes for the summary.
-pub fn render(a: &SimulateArgs) -> Result<Option<(Option<RulerTruth>, Vec<String>)>, Error> {
+/// The ruler and the notes of a written photo, for the summary.
+pub type Written = (Option<RulerTruth>, Vec<String>);
+
+/// Renders and writes a pinhole or particle photo; `None` for the other kinds.
+pub fn render(a: &SimulateArgs) -> Result<Option<Written>, Error> {
     let (scene, camera, effects) = match a.kind {
         SimKind::Pinhole | SimKind::Particles => common(a)?,
         _ => return Ok(None),

@@ -57,8 +57,8 @@ fn ring_ratios_follow_the_zeros_of_j1_and_j2() {
             ring.index
         );
     }
-    // First bright ring at 1.75 % of the centre ([2J1(x)/x]² at x = 5.1356, from the
-    // A&S table 9.1 value J1(5.1356) ≈ −0.3397: (2·0.3397/5.1356)² = 0.0175).
+    // First bright ring at 1.75 % of the centre: [2J1(x)/x]² at x = 5.1356 with
+    // J1(5.1356) ≈ −0.3397 (interpolated in Abramowitz & Stegun, table 9.1).
     assert!((bright[0].relative - 0.0175).abs() < 0.0005, "{bright:?}");
     assert!(dark.iter().all(|r| r.relative < 1e-6));
 }
@@ -128,7 +128,13 @@ fn pinhole_photo_has_a_saturated_centre_and_dark_rings_where_the_truth_says() {
     };
     let at = |r: &RingPoint| around(r.points_px[0].unwrap());
     let (d2, b1, b2) = (&t.rings.dark[1], &t.rings.bright[0], &t.rings.bright[1]);
-    assert!(at(d2) < at(b1) && at(d2) < at(b2), "{} {} {}", at(d2), at(b1), at(b2));
+    assert!(
+        at(d2) < at(b1) && at(d2) < at(b2),
+        "{} {} {}",
+        at(d2),
+        at(b1),
+        at(b2)
+    );
     assert!(d2.in_frame && d2.radius_px.unwrap() > 10.0);
     // The screen radius is where the rays at the ring's sin θ land: L tan θ.
     let theta = d2.sin_theta.asin();
