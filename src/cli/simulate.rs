@@ -1,6 +1,9 @@
 //! `fringegauge simulate KIND --out PHOTO`: a synthetic photo with its truth beside it
 //! (`PHOTO.truth.json`), for trying the tool, for tests and for choosing a bench layout.
-//! Kinds: a grating's spots, or the fringes of two slits, a slit or a wire.
+//! Kinds: a grating's spots, the fringes of two slits, a slit or a wire, a pinhole's rings
+//! or a particle field's halo (see [`rings`]).
+
+mod rings;
 
 use crate::quantity::{self, Dimension};
 use crate::simulate::{
@@ -22,6 +25,10 @@ pub enum SimKind {
     Slit,
     /// Fringes of a wire or fibre in a wide beam.
     Wire,
+    /// Rings of a circular pinhole (exposed on the first bright ring).
+    Pinhole,
+    /// The halo of a random field of opaque particles (exposed on the halo).
+    Particles,
 }
 
 impl SimKind {
@@ -57,11 +64,12 @@ pub struct SimulateArgs {
     #[arg(long = "slit-width", value_name = "LENGTH")]
     pub slit_width: Option<String>,
 
-    /// Wire or fibre diameter (wire)
-    #[arg(long, value_name = "LENGTH", default_value = "0.127mm")]
-    pub diameter: String,
+    /// Wire, fibre or pinhole diameter [default: 0.127mm for wire, 0.2mm for pinhole]
+    #[arg(long, value_name = "LENGTH")]
+    pub diameter: Option<String>,
 
-    /// Diffracting object to screen, along the beam [default: 1.25m for grating, else 2.5m]
+    /// Diffracting object to screen, along the beam [default: 1.25m for grating, 0.5m for
+    /// particles, else 2.5m]
     #[arg(long, value_name = "LENGTH")]
     pub distance: Option<String>,
 
@@ -73,7 +81,8 @@ pub struct SimulateArgs {
     #[arg(long)]
     pub reflect: bool,
 
-    /// Laser beam diameter (1/e²) [default: 3mm for wire, else 1.5mm]
+    /// Laser beam diameter (1/e²) [default: 3mm for wire, 0.6mm for particles,
+    /// else 1.5mm]
     #[arg(long, value_name = "LENGTH")]
     pub beam: Option<String>,
 
@@ -97,9 +106,10 @@ pub struct SimulateArgs {
     #[arg(long, default_value_t = 1200)]
     pub height: u32,
 
-    /// Highest order (grating) or dark fringe on each side (two-slit, slit, wire) the
-    /// camera is aimed to keep in the frame [default: 2 for grating, 10 for two-slit, 5 for
-    /// slit and wire]
+    /// Highest order (grating), dark fringe on each side (two-slit, slit, wire), dark ring
+    /// (pinhole) or multiple of wavelength / mean diameter in sin θ (particles) the camera is
+    /// aimed to keep in the frame [default: 2 for grating, 10 for two-slit, 5 for slit and
+    /// wire, 6 for pinhole, 2 for particles]
     #[arg(long = "frame-orders")]
     pub frame_orders: Option<u32>,
 
@@ -136,7 +146,8 @@ pub struct SimulateArgs {
     pub flare: f64,
 
     /// Peak of the reference light (zero order; central fringe, or a wire's first side
-    /// fringe) relative to saturation [default: 3, or 0.5 with --clean]
+    /// fringe; a pinhole's first bright ring; the particles' halo at half wavelength / mean
+    /// diameter) relative to saturation [default: 3, or 0.5 with --clean]
     #[arg(long, value_name = "FACTOR")]
     pub overexposure: Option<f64>,
 
@@ -147,6 +158,10 @@ pub struct SimulateArgs {
     /// JPEG quality (1-100)
     #[arg(long, default_value_t = 92, value_parser = clap::value_parser!(u8).range(1..=100))]
     pub quality: u8,
+
+    /// Particle field (particles)
+    #[command(flatten)]
+    pub rings: rings::RingArgs,
 
     /// Random seed
     #[arg(long, default_value_t = 1)]
@@ -189,7 +204,7 @@ pub fn configure_aperture(
     a: &SimulateArgs,
 ) -> Result<Option<(ApertureSetup, Scene, CameraSpec, Effects)>, Error> {
     let base = match a.kind {
-        SimKind::Grating => return Ok(None),
+        SimKind::Grating | SimKind::Pinhole | SimKind::Particles => return Ok(None),
         SimKind::TwoSlit => ApertureSetup::two_slit(),
         SimKind::Slit => ApertureSetup::slit(),
         SimKind::Wire => ApertureSetup::wire(),
@@ -203,7 +218,7 @@ pub fn configure_aperture(
             width_m: length(or(&a.slit_width, "0.1mm"), "--slit-width")?,
         },
         _ => Aperture::Wire {
-            diameter_m: length(&a.diameter, "--diameter")?,
+            diameter_m: length(or(&a.diameter, "0.127mm"), "--diameter")?,
         },
     };
     let setup = ApertureSetup {
@@ -246,6 +261,8 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
         SimKind::Grating => 2,
         SimKind::TwoSlit => 10,
         SimKind::Slit | SimKind::Wire => 5,
+        SimKind::Pinhole => 6,
+        SimKind::Particles => 2,
     };
     let camera = CameraSpec {
         width_px: a.width,
@@ -274,7 +291,9 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
 
 /// Runs `fringegauge simulate`.
 pub fn run(a: &SimulateArgs) -> Result<ExitCode, Error> {
-    let (ruler, notes) = if let Some((setup, scene, camera, effects)) = configure_aperture(a)? {
+    let (ruler, notes) = if let Some(done) = rings::render(a)? {
+        done
+    } else if let Some((setup, scene, camera, effects)) = configure_aperture(a)? {
         let photo = simulate::render_aperture(&setup, &scene, &camera, &effects, a.seed)?;
         photo.write(&a.out, a.quality, a.force)?;
         (photo.truth.ruler, photo.truth.notes)

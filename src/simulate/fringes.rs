@@ -126,6 +126,7 @@ pub(crate) fn light_on_screen(
         profile,
         peak_per_mm2: peak / norm_y,
         sigma_x_mm: (m2 / m0.max(f64::MIN_POSITIVE)).sqrt(),
+        map: None,
     }];
     if let Some(beam) = &spec.beam_power {
         spots.push(through_beam(setup, spec, beam)?);

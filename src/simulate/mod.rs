@@ -25,6 +25,7 @@
 mod aperture;
 mod camera;
 mod clutter;
+mod direction_map;
 mod effects;
 mod farfield;
 mod fringe_photo;
@@ -32,8 +33,12 @@ mod fringe_truth;
 mod fringes;
 mod glare;
 mod output;
+mod particles;
 mod photo;
+mod pinhole;
 mod render;
+mod ring_photo;
+mod ring_truth;
 mod scene;
 mod screen;
 mod spots;
@@ -48,6 +53,12 @@ pub use effects::Effects;
 pub use farfield::{GratingProfile, GratingSetup};
 pub use fringe_truth::{ApertureInputs, ApertureTruth, FringePoint, FringeTruth};
 pub use output::truth_path;
+pub use particles::{ParticleSetup, SizeDistribution};
+pub use pinhole::PinholeSetup;
+pub use ring_truth::{
+    DistributionTruth, HaloTruth, ParticleSample, ParticlesTruth, PinholeTruth, RingPoint,
+    RingsTruth,
+};
 pub use scene::{Clutter, GraphPaper, RoomLight, Ruler, Scene, Surface};
 pub use truth::{
     CameraTruth, GratingInputs, GridTruth, OrderTruth, RulerTruth, ScreenFrame, SheetTruth, Truth,
@@ -155,4 +166,30 @@ pub fn render_aperture(
     seed: u64,
 ) -> Result<SimPhoto<ApertureTruth>, SimError> {
     fringe_photo::render(setup, scene, camera, effects, seed, true)
+}
+
+/// Renders a photo of a pinhole's rings on a screen perpendicular to the beam, exposed on
+/// the first bright ring. `seed` drives every random choice, so equal inputs give equal
+/// photos.
+pub fn render_pinhole(
+    setup: &PinholeSetup,
+    scene: &Scene,
+    camera: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+) -> Result<SimPhoto<PinholeTruth>, SimError> {
+    ring_photo::render_pinhole(setup, scene, camera, effects, seed, true)
+}
+
+/// Renders a photo of the halo of a random field of opaque particles on a screen
+/// perpendicular to the beam, exposed on the halo. `seed` drives every random choice (the
+/// particles' sizes and places included).
+pub fn render_particles(
+    setup: &ParticleSetup,
+    scene: &Scene,
+    camera: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+) -> Result<SimPhoto<ParticlesTruth>, SimError> {
+    ring_photo::render_particles(setup, scene, camera, effects, seed, true)
 }

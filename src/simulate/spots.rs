@@ -16,8 +16,10 @@
 //! screen Y = world y (across the pattern, "down" as the camera sees the lit face).
 
 use super::SimError;
+use super::direction_map::DirectionMap;
 use super::farfield::{AngularSpectrum, GratingSetup};
 use nalgebra::Vector3;
+use std::sync::Arc;
 
 /// Light of one order on the screen.
 #[derive(Debug, Clone)]
@@ -37,11 +39,16 @@ pub(crate) struct OrderSpot {
     pub peak_per_mm2: f64,
     /// RMS width of the spot along X, mm.
     pub sigma_x_mm: f64,
+    /// A two-dimensional far field (rings, halos) instead of the tabulated profile.
+    pub map: Option<Arc<DirectionMap>>,
 }
 
 impl OrderSpot {
     /// X range where this order has light.
     pub fn x_range_mm(&self) -> (f64, f64) {
+        if let Some(m) = &self.map {
+            return (-m.reach_mm(), m.reach_mm());
+        }
         (
             self.x0_mm,
             self.x0_mm + self.step_mm * (self.profile.len().saturating_sub(1)) as f64,
@@ -50,11 +57,17 @@ impl OrderSpot {
 
     /// Half-height of the band where this order has light.
     pub fn y_reach_mm(&self) -> f64 {
+        if let Some(m) = &self.map {
+            return m.reach_mm();
+        }
         6.0 * self.sigma_y_mm
     }
 
     /// Irradiance at a screen point, power fraction per mm².
     pub fn irradiance(&self, x_mm: f64, y_mm: f64) -> f64 {
+        if let Some(m) = &self.map {
+            return m.irradiance(x_mm, y_mm);
+        }
         let u = (x_mm - self.x0_mm) / self.step_mm;
         if u.is_nan() || u < 0.0 {
             return 0.0;
@@ -208,6 +221,7 @@ pub(crate) fn light_on_screen(
             profile,
             peak_per_mm2: peak,
             sigma_x_mm: (m2 / m0.max(f64::MIN_POSITIVE)).sqrt(),
+            map: None,
         });
     }
     out.unreached.extend(spectrum.grazing.iter().copied());

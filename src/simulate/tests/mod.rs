@@ -3,6 +3,7 @@
 mod files;
 mod fringes;
 mod image_truth;
+mod rings;
 mod scenes;
 
 use super::*;
