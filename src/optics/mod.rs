@@ -3,6 +3,7 @@
 //! experiment's inputs, and returns results with GUM budgets.
 
 pub mod grating;
+pub mod lattice;
 pub mod profile;
 pub mod slit;
 pub mod two_slit;
