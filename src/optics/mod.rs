@@ -2,6 +2,7 @@
 //! each solver takes feature positions with their uncertainties, the screen map and the
 //! experiment's inputs, and returns results with GUM budgets.
 
+pub mod electron;
 pub mod grating;
 pub mod lattice;
 pub mod profile;
