@@ -116,7 +116,8 @@ impl FromStr for Family {
 }
 
 /// A lattice: its family and, where given, its constants (a prior to compare with or a
-/// reference to calibrate against, never a measured result).
+/// reference to calibrate against, never a measured result). `Display` writes it back as
+/// `fcc:a=0.40782nm`, without the uncertainties.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Lattice {
     /// The family.
@@ -171,7 +172,8 @@ impl fmt::Display for Lattice {
         let mut sep = ':';
         for (name, v) in [("a", self.a_m), ("c", self.c_m)] {
             if let Some(v) = v {
-                write!(f, "{sep}{name}={}nm", v * 1e9)?;
+                // Rounded to 1 fm so that the shortest repr carries no binary noise.
+                write!(f, "{sep}{name}={}nm", (v * 1e15).round() / 1e6)?;
                 sep = ',';
             }
         }

@@ -66,6 +66,13 @@ fn lattice_strings_parse_with_units_and_uncertainty() {
     let l: Lattice = " Diamond:a=0.54310nm±0.00002nm".parse().unwrap();
     assert_eq!(l.family, Family::Diamond);
     assert!((l.u_a_m.unwrap() - 2e-14).abs() < 1e-24);
+    assert_eq!(
+        "hex:a=0.2461nm,c=0.6708nm"
+            .parse::<Lattice>()
+            .unwrap()
+            .to_string(),
+        "hex:a=0.2461nm,c=0.6708nm"
+    );
     let l: Lattice = "bcc:a=2.8665e-10m".parse().unwrap();
     assert!((l.a_m.unwrap() - 0.28665 * NM).abs() < 1e-22);
 }
