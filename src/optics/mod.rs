@@ -3,7 +3,9 @@
 //! experiment's inputs, and returns results with GUM budgets.
 
 pub mod airy;
+pub mod electron;
 pub mod grating;
+pub mod lattice;
 pub mod pinhole;
 pub mod profile;
 pub mod slit;
