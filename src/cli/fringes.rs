@@ -482,7 +482,10 @@ pub(super) fn fit_entry<M: IntensityModel>(text: &str, model: &M, fit: &ProfileF
     }
 }
 
-pub(super) fn mc_note(record: &mut Record, mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>) {
+pub(super) fn mc_note(
+    record: &mut Record,
+    mc: &Option<(uncertainty::McEstimate, uncertainty::Validation)>,
+) {
     if let Some((mc, v)) = mc {
         record
             .assumptions

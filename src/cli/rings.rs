@@ -9,7 +9,8 @@ use super::inputs::InputBook;
 use super::output::{self, Clock};
 use crate::find::FindError;
 use crate::find::rings::{
-    Annulus, RadialCells, RadialOptions, RadialProfile, RingCentre, refine_centre, start_centre,
+    Annulus, RadialCells, RadialOptions, RadialProfile, RingCentre, core_radius_px, refine_centre,
+    start_centre,
 };
 use crate::optics::airy::AiryModel;
 use crate::optics::pinhole::{self, PinholeInputs, RadialData};
@@ -76,7 +77,10 @@ pub(super) fn measure_rings(
     let forced = output::forced_channel(photo_args.channel.as_deref())?;
     let (channel, channel_note, cmap) = pattern_channel(&photo, forced, wavelength_m);
     let plane = photo.plane(channel);
-    let all_clipped = cmap.clipped.iter().all(|&c| usize::from(c) >= cmap.block * cmap.block);
+    let all_clipped = cmap
+        .clipped
+        .iter()
+        .all(|&c| usize::from(c) >= cmap.block * cmap.block);
     if all_clipped {
         return Err(FindError::Unmeasurable(
             "the whole photo is saturated: take it with a shorter exposure, less gain or a \
@@ -152,7 +156,11 @@ pub(super) fn measure_rings(
 fn as_profile(p: &RadialProfile) -> FringeProfile {
     FringeProfile {
         x_mm: p.r_mm.clone(),
-        value: p.value.iter().map(|v| if v.is_finite() { *v } else { 0.0 }).collect(),
+        value: p
+            .value
+            .iter()
+            .map(|v| if v.is_finite() { *v } else { 0.0 })
+            .collect(),
         used: p.value.iter().map(|v| v.is_finite()).collect(),
         clipped: p.clipped.clone(),
     }
@@ -161,34 +169,25 @@ fn as_profile(p: &RadialProfile) -> FringeProfile {
 /// The farthest screen distance from the centre that is still inside the frame along the
 /// image axes' directions, mm: the largest radius worth tabulating.
 fn frame_reach_mm(map: &ScreenMap, c_mm: Vector2<f64>, w: f64, h: f64) -> f64 {
-    [(0.0, 0.0), (w - 1.0, 0.0), (0.0, h - 1.0), (w - 1.0, h - 1.0)]
-        .iter()
-        .map(|&(x, y)| (map.to_mm(Vector2::new(x, y)) - c_mm).norm())
-        .fold(0.0, f64::max)
-}
-
-/// Radius of the clipped blocks' region around `c_px`, px (0 if none).
-fn core_radius_px(cmap: &crate::find::blobs::CoarseMap, c_px: Vector2<f64>) -> f64 {
-    let (bw, _) = cmap.size;
-    let b = cmap.block as f64;
-    let mut r: f64 = 0.0;
-    for (i, &c) in cmap.clipped.iter().enumerate() {
-        if usize::from(c) * 2 >= cmap.block * cmap.block {
-            let p = Vector2::new((i % bw) as f64 * b + 0.5 * b, (i / bw) as f64 * b + 0.5 * b);
-            let d = (p - c_px).norm();
-            // Clipped blocks far from the centre (a glint, a lamp) are not the core.
-            if d < 0.25 * b * bw as f64 {
-                r = r.max(d + 0.5 * b);
-            }
-        }
-    }
-    r
+    [
+        (0.0, 0.0),
+        (w - 1.0, 0.0),
+        (0.0, h - 1.0),
+        (w - 1.0, h - 1.0),
+    ]
+    .iter()
+    .map(|&(x, y)| (map.to_mm(Vector2::new(x, y)) - c_mm).norm())
+    .fold(0.0, f64::max)
 }
 
 /// A stretch clear of the bright centre, for counting graph-paper lines: horizontal,
 /// a tenth of the frame below (or above) the centre.
 fn grid_stretch(c: Vector2<f64>, w: f64, h: f64) -> (Vector2<f64>, Vector2<f64>) {
-    let dy = if c.y + 0.1 * h < h - 2.0 { 0.1 * h } else { -0.1 * h };
+    let dy = if c.y + 0.1 * h < h - 2.0 {
+        0.1 * h
+    } else {
+        -0.1 * h
+    };
     let y = (c.y + dy).clamp(1.0, h - 2.0);
     (Vector2::new(0.1 * w, y), Vector2::new(0.9 * w, y))
 }
@@ -453,7 +452,10 @@ mod tests {
     fn a_circle_seen_square_on_is_a_circle_in_the_photo() {
         let map = ScreenMap::uniform(ScaleMethod::MmPerPx, 0.1).unwrap();
         let e = circle_in_photo(&map, Vector2::new(10.0, 8.0), 5.0);
-        assert!((e.a - 50.0).abs() < 1e-9 && (e.b - 50.0).abs() < 1e-9, "{e:?}");
+        assert!(
+            (e.a - 50.0).abs() < 1e-9 && (e.b - 50.0).abs() < 1e-9,
+            "{e:?}"
+        );
         assert!((e.cx - 100.0).abs() < 1e-9 && (e.cy - 80.0).abs() < 1e-9);
     }
 
@@ -463,7 +465,10 @@ mod tests {
         let h = Matrix3::new(0.1, 0.0, 0.0, 0.0, 0.2, 0.0, 0.0, 0.0, 1.0);
         let map = ScreenMap::from_homography(ScaleMethod::Points, h, Vector2::zeros()).unwrap();
         let e = circle_in_photo(&map, Vector2::new(10.0, 8.0), 5.0);
-        assert!((e.a - 50.0).abs() < 1e-9 && (e.b - 25.0).abs() < 1e-9, "{e:?}");
+        assert!(
+            (e.a - 50.0).abs() < 1e-9 && (e.b - 25.0).abs() < 1e-9,
+            "{e:?}"
+        );
         assert!(e.angle.abs() < 1e-9);
     }
 }

@@ -128,7 +128,8 @@ impl RadialCells {
                     for &y in ys {
                         raster.row_into(y, &mut row);
                         let yf = y as f64;
-                        for (x, &v) in row.iter().enumerate().take(x1 + 1).skip(x0).step_by(stride) {
+                        for (x, &v) in row.iter().enumerate().take(x1 + 1).skip(x0).step_by(stride)
+                        {
                             let xf = x as f64;
                             let den = hm[(2, 0)] * xf + hm[(2, 1)] * yf + hm[(2, 2)];
                             let dx = (hm[(0, 0)] * xf + hm[(0, 1)] * yf + hm[(0, 2)]) / den

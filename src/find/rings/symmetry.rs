@@ -19,9 +19,10 @@ pub struct Grid<'a> {
 }
 
 /// The radial-symmetry centre in grid coordinates (cell centres at integers), using the
-/// gradients within `radius` cells of `near` (the whole grid if None). Two passes: the
-/// second weights each gradient by 1/distance from the first pass's centre, as the method
-/// prescribes, so that the far field's stray gradients count less. None where the
+/// gradients within `radius` cells of `near` (the whole grid if None), starting from
+/// `near`. Each pass weights a gradient by |∇I|²/distance from the last centre, as the
+/// method prescribes, so that the far field's stray gradients count less, and later
+/// passes also by how far its line misses that centre. None where the
 /// gradients do not fix a point (a flat or one-dimensional pattern).
 pub fn radial_symmetry_centre(
     grid: &Grid,
@@ -51,30 +52,49 @@ pub fn radial_symmetry_centre(
     }
     let within =
         |p: &Vector2<f64>, c: Option<Vector2<f64>>| c.is_none_or(|c| (p - c).norm() <= radius);
-    // First pass centre: the gradient-magnitude-weighted centroid, the method's start.
-    let mut centre = {
-        let (mut sw, mut sp) = (0.0, Vector2::zeros());
-        for (p, g) in samples.iter().filter(|(p, _)| within(p, near)) {
-            let w = g.norm_squared();
-            sw += w;
-            sp += p * w;
+    let chosen: Vec<&(Vector2<f64>, Vector2<f64>)> =
+        samples.iter().filter(|(p, _)| within(p, near)).collect();
+    // The start: `near` where given, else the gradient-magnitude-weighted centroid (the
+    // method's own start).
+    let mut centre = match near {
+        Some(c) => c,
+        None => {
+            let (mut sw, mut sp) = (0.0, Vector2::zeros());
+            for (p, g) in &chosen {
+                let w = g.norm_squared();
+                sw += w;
+                sp += p * w;
+            }
+            if sw <= 0.0 {
+                return None;
+            }
+            sp / sw
         }
-        if sw <= 0.0 {
-            return None;
-        }
-        sp / sw
     };
-    for _ in 0..3 {
+    for pass in 0..10 {
+        // Lines that miss the current centre by far more than the typical line (a
+        // ruler's edges and ticks, glare) are down-weighted by a Cauchy weight on that miss
+        // distance (iteratively reweighted least squares; Holland & Welsch, Commun. Stat.
+        // 6:813, 1977): from the first pass when the start is given, else from the third,
+        // once the plain passes have found the pattern.
+        let misses: Vec<f64> = chosen
+            .iter()
+            .map(|(p, g)| (p - centre).dot(&Vector2::new(-g.y, g.x)).abs() / g.norm())
+            .collect();
+        let c = if (pass >= 2 || near.is_some()) && !misses.is_empty() {
+            let mut m = misses.clone();
+            let mid = m.len() / 2;
+            2.0 * m.select_nth_unstable_by(mid, f64::total_cmp).1.max(0.5)
+        } else {
+            f64::INFINITY
+        };
         let mut a = Matrix2::zeros();
         let mut b = Vector2::zeros();
-        for (p, g) in samples
-            .iter()
-            .filter(|(p, _)| within(p, near.or(Some(centre))))
-        {
+        for ((p, g), miss) in chosen.iter().zip(&misses) {
             let m2 = g.norm_squared();
             let n = Vector2::new(-g.y, g.x) / m2.sqrt();
             let dist = (p - centre).norm().max(1.0);
-            let wgt = m2 / dist;
+            let wgt = m2 / dist / (1.0 + (miss / c).powi(2));
             let nn = n * n.transpose() * wgt;
             a += nn;
             b += nn * p;
@@ -85,7 +105,7 @@ pub fn radial_symmetry_centre(
         }
         let moved = (next - centre).norm();
         centre = next;
-        if moved < 1e-3 {
+        if moved < 1e-3 && pass >= 3 {
             break;
         }
     }
