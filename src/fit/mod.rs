@@ -2,6 +2,7 @@
 //! sub-sample extrema and FFT period estimation. Nothing here knows about photos, screens
 //! or physics; the stages above call these with plain numbers.
 
+pub mod bessel;
 pub mod hac;
 pub mod line;
 pub mod lm;
