@@ -184,7 +184,11 @@ fn hankel_pq(nu: f64, x: f64) -> (f64, f64) {
 
 /// Adds a_k/x^k to P (even k) or Q (odd k) with the sign (−1)^⌊k/2⌋.
 fn add_term(p: &mut f64, q: &mut f64, k: u32, term: f64) {
-    let signed = if (k / 2).is_multiple_of(2) { term } else { -term };
+    let signed = if (k / 2).is_multiple_of(2) {
+        term
+    } else {
+        -term
+    };
     if k.is_multiple_of(2) {
         *p += signed;
     } else {

@@ -3,6 +3,7 @@
 //! or physics; the stages above call these with plain numbers.
 
 pub mod bessel;
+pub mod circle;
 pub mod hac;
 pub mod line;
 pub mod lm;
