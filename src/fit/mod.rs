@@ -4,6 +4,7 @@
 
 pub mod bessel;
 pub mod circle;
+pub mod ellipse;
 pub mod hac;
 pub mod line;
 pub mod lm;
