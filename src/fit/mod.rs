@@ -1,11 +1,15 @@
 //! Numerics with no image types: Levenberg–Marquardt least squares, straight lines,
+//! circles and ellipses through points, non-negative least squares, Bessel functions,
 //! sub-sample extrema and FFT period estimation. Nothing here knows about photos, screens
 //! or physics; the stages above call these with plain numbers.
 
 pub mod bessel;
+pub mod circle;
+pub mod ellipse;
 pub mod hac;
 pub mod line;
 pub mod lm;
+pub mod nnls;
 pub mod peak;
 pub mod spectral;
 
