@@ -11,6 +11,8 @@ use crate::{Error, ExitCode};
 use clap::{Args, ValueEnum};
 use std::path::PathBuf;
 
+mod electron;
+
 /// What to simulate.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum SimKind {
@@ -22,6 +24,8 @@ pub enum SimKind {
     Slit,
     /// Fringes of a wire or fibre in a wide beam.
     Wire,
+    /// Rings of a polycrystalline film in an electron-diffraction tube.
+    Electron,
 }
 
 impl SimKind {
@@ -152,6 +156,10 @@ pub struct SimulateArgs {
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
 
+    /// The electron kind's own flags.
+    #[command(flatten)]
+    pub electron: electron::ElectronArgs,
+
     /// Overwrite existing files
     #[arg(long)]
     pub force: bool,
@@ -190,6 +198,7 @@ pub fn configure_aperture(
 ) -> Result<Option<(ApertureSetup, Scene, CameraSpec, Effects)>, Error> {
     let base = match a.kind {
         SimKind::Grating => return Ok(None),
+        SimKind::Electron => return Ok(None),
         SimKind::TwoSlit => ApertureSetup::two_slit(),
         SimKind::Slit => ApertureSetup::slit(),
         SimKind::Wire => ApertureSetup::wire(),
@@ -246,6 +255,7 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
         SimKind::Grating => 2,
         SimKind::TwoSlit => 10,
         SimKind::Slit | SimKind::Wire => 5,
+        SimKind::Electron => 0,
     };
     let camera = CameraSpec {
         width_px: a.width,
@@ -274,6 +284,9 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
 
 /// Runs `fringegauge simulate`.
 pub fn run(a: &SimulateArgs) -> Result<ExitCode, Error> {
+    if a.kind == SimKind::Electron {
+        return electron::run(a);
+    }
     let (ruler, notes) = if let Some((setup, scene, camera, effects)) = configure_aperture(a)? {
         let photo = simulate::render_aperture(&setup, &scene, &camera, &effects, a.seed)?;
         photo.write(&a.out, a.quality, a.force)?;
