@@ -10,7 +10,8 @@
 
 use super::camera::{Camera, CameraSpec, Framing};
 use super::effects::{self, Effects};
-use super::electron::{ElectronSetup, Ring, TubeScreen};
+use super::electron::{ElectronSetup, TubeScreen};
+use super::electron_light::{Light, Profile};
 use super::electron_truth::{self, ElectronTruth};
 use super::glare;
 use super::scene::{Ruler, Scene};
@@ -26,7 +27,7 @@ pub(crate) const PHOSPHOR_RGB: [f32; 3] = [0.30, 1.0, 0.36];
 /// The room around the tube and the look of the phosphor.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct TubeScene {
-    /// Linear signal of white paper lit by the dim room light (a darkened room: 0.05).
+    /// Linear signal of white paper lit by the dim room light (a darkened room: 0.025).
     pub room_level: f64,
     /// Fractional darkening at the frame corners.
     pub vignetting: f64,
@@ -51,7 +52,7 @@ impl Default for TubeScene {
     /// A darkened room, a ruler 8 mm below the tube, a faint ghost.
     fn default() -> Self {
         TubeScene {
-            room_level: 0.05,
+            room_level: 0.025,
             vignetting: 0.3,
             ruler: Some(Ruler {
                 offset_mm: 8.0,
@@ -115,101 +116,6 @@ impl TubeScene {
             scene.validate()?;
         }
         Ok(())
-    }
-}
-
-/// The electron light on the phosphor as a function of the deflection ψ, in linear green
-/// signal per unit of phosphor area seen face-on.
-pub(crate) struct Light {
-    rings: Vec<Ring>,
-    /// Peak of each ring, linear.
-    amplitude: Vec<f64>,
-    /// The largest ring σ, rad.
-    widest: f64,
-    glow_level: f64,
-    glow_width: f64,
-    glow_floor: f64,
-    spot_peak: f64,
-    spot_sigma: f64,
-    halo_len: f64,
-    on: bool,
-}
-
-/// The spot's halo, relative to its core (electrons scattered by the film's support and the
-/// phosphor's own light spreading in it).
-const HALO: f64 = 0.06;
-
-impl Light {
-    fn new(setup: &ElectronSetup, scene: &TubeScene, effects: &Effects, rings: Vec<Ring>) -> Self {
-        let mut light = Light {
-            amplitude: Vec::new(),
-            widest: rings.iter().map(|r| r.sigma_rad).fold(0.0, f64::max),
-            glow_level: scene.glow_level,
-            glow_width: scene.glow_width_rad,
-            glow_floor: scene.glow_floor,
-            // The overexposure is the spot's peak in the phosphor's weakest channel, so
-            // above 1 its core clips white.
-            spot_peak: effects.overexposure / PHOSPHOR_RGB[0] as f64,
-            spot_sigma: (setup.divergence_rad / 2.3548).max(4e-3),
-            halo_len: 0.015,
-            on: setup.beam_on,
-            rings,
-        };
-        // Scale every ring alike so the most prominent one stands `ring_contrast` over the
-        // glow at its radius.
-        let most = light
-            .rings
-            .iter()
-            .map(|r| r.peak / light.glow(r.two_theta))
-            .fold(0.0, f64::max);
-        let k = setup.ring_contrast / most.max(f64::MIN_POSITIVE);
-        light.amplitude = light.rings.iter().map(|r| k * r.peak).collect();
-        light
-    }
-
-    /// The diffuse glow.
-    pub fn glow(&self, psi: f64) -> f64 {
-        let u = 1.0 + (psi / self.glow_width).powi(2);
-        self.glow_level * ((1.0 - self.glow_floor) / (u * u.sqrt()) + self.glow_floor)
-    }
-
-    /// The rings alone.
-    fn rings_at(&self, psi: f64) -> f64 {
-        let mut sum = 0.0;
-        // Rings run inner first: start at the first one within reach.
-        let first = self
-            .rings
-            .partition_point(|r| r.two_theta + 6.0 * self.widest < psi);
-        for (r, a) in self.rings[first..].iter().zip(&self.amplitude[first..]) {
-            if r.two_theta - 6.0 * self.widest > psi {
-                break;
-            }
-            let z = (psi - r.two_theta) / r.sigma_rad;
-            if z.abs() < 6.0 {
-                sum += a * (-0.5 * z * z).exp();
-            }
-        }
-        sum
-    }
-
-    /// Everything the beam puts at ψ.
-    fn at(&self, psi: f64) -> f64 {
-        if !self.on {
-            return 0.0;
-        }
-        let z = psi / self.spot_sigma;
-        let core = if z < 8.0 { (-0.5 * z * z).exp() } else { 0.0 };
-        let halo = HALO * (-psi / self.halo_len).exp();
-        self.glow(psi) + self.rings_at(psi) + self.spot_peak * (core + halo)
-    }
-
-    /// Each ring's peak over the glow at its radius.
-    pub fn contrasts(&self) -> Vec<f64> {
-        self.rings
-            .iter()
-            .zip(&self.amplitude)
-            .map(|(r, a)| a / self.glow(r.two_theta))
-            .collect()
     }
 }
 
@@ -280,6 +186,7 @@ impl Tube {
 struct Sample<'a> {
     tube: &'a Tube,
     light: &'a Light,
+    profile: Profile,
     room: f64,
     seed: u64,
 }
@@ -288,14 +195,21 @@ const BACKGROUND: f32 = 0.025;
 const PHOSPHOR_WHITE: [f32; 3] = [0.62, 0.63, 0.58];
 
 impl Sample<'_> {
-    fn see(&self, c: [f64; 3], q: [f64; 2], fp: Footprint) -> [f32; 3] {
+    /// The phosphor's grain near the front-plane point `q`, a factor near 1 (smooth over a
+    /// pixel, so one value serves all its samples).
+    fn grain(&self, q: [f64; 2]) -> f64 {
+        1.0 + 0.05 * value_noise(q[0] / 0.12, q[1] / 0.12, self.seed)
+            + 0.03 * value_noise(q[0] / 0.9, q[1] / 0.9, self.seed ^ 0x7068_6f73)
+    }
+
+    fn see(&self, c: [f64; 3], q: [f64; 2], fp: Footprint, grain: f64) -> [f32; 3] {
         let room = self.room as f32;
         let behind = match self.tube.screen {
-            TubeScreen::Flat { distance_m, .. } => self.flat(q, distance_m * 1e3, fp),
+            TubeScreen::Flat { .. } => self.flat(q, fp, grain),
             TubeScreen::Sphere {
                 radius_m,
                 coated_to_rad,
-            } => self.sphere(c, q, radius_m * 1e3, coated_to_rad, fp),
+            } => self.sphere(c, q, radius_m * 1e3, coated_to_rad, fp, grain),
         };
         let Some(b) = self.tube.ruler_box else {
             return behind;
@@ -315,7 +229,7 @@ impl Sample<'_> {
             .ruler_over(r, [0.0; 3], q[0], q[1], fp);
         let gap = q[1] - self.tube.screen.outline_mm();
         let spill = if self.light.on {
-            (0.05 * self.light.glow_level / (1.0 + (gap / 30.0).powi(2))) as f32
+            (0.15 * self.light.glow_level / (1.0 + (gap / 30.0).powi(2))) as f32
         } else {
             0.0
         };
@@ -326,19 +240,17 @@ impl Sample<'_> {
         out
     }
 
-    /// The phosphor's emission and its reflectance under the room light at deflection `psi`
-    /// and front-view position `p` (mm), with `area` the flux-per-area factor.
-    fn phosphor(&self, psi: f64, p: [f64; 2], area: f64) -> [f32; 3] {
-        let grain = 1.0
-            + 0.05 * value_noise(p[0] / 0.12, p[1] / 0.12, self.seed)
-            + 0.03 * value_noise(p[0] / 0.9, p[1] / 0.9, self.seed ^ 0x7068_6f73);
-        let e = (self.light.at(psi) * area * grain) as f32;
+    /// The phosphor's emission and its reflectance under the room light at the front-view
+    /// distance `rho` from the axis.
+    fn phosphor(&self, rho: f64, grain: f64) -> [f32; 3] {
+        let e = self.profile.at(rho) * grain as f32;
         let room = self.room as f32;
         [0, 1, 2].map(|i| e * PHOSPHOR_RGB[i] + room * PHOSPHOR_WHITE[i])
     }
 
-    fn flat(&self, q: [f64; 2], l_mm: f64, fp: Footprint) -> [f32; 3] {
-        let rho = q[0].hypot(q[1]);
+    fn flat(&self, q: [f64; 2], fp: Footprint, grain: f64) -> [f32; 3] {
+        // Not `hypot`: its care for overflow costs more than the whole rest of a sample.
+        let rho = (q[0] * q[0] + q[1] * q[1]).sqrt();
         let rs = self.tube.screen.outline_mm();
         let h = fp.hx.max(fp.hy);
         let on = box_cover(rho, h, -1.0, rs) as f32;
@@ -347,14 +259,17 @@ impl Sample<'_> {
         if on < 1.0 {
             // The bezel: dark grey, a little brighter at its outer lip.
             let rim = box_cover(rho, h, rs, rs + self.tube.rim_mm) as f32;
-            let lip = (-((rho - rs - self.tube.rim_mm + 1.0) / 0.8).powi(2)).exp() as f32;
+            let z = (rho - rs - self.tube.rim_mm + 1.0) / 0.8;
+            let lip = if z.abs() < 6.0 {
+                (-z * z).exp() as f32
+            } else {
+                0.0
+            };
             let bezel = room * (0.12 + 0.25 * lip);
             out = out.map(|b| b * (1.0 - rim) + bezel * rim);
         }
         if on > 0.0 {
-            let psi = (rho / l_mm).atan();
-            let cos = psi.cos();
-            let ph = self.phosphor(psi, q, cos * cos * cos);
+            let ph = self.phosphor(rho, grain);
             for (o, p) in out.iter_mut().zip(ph) {
                 *o = *o * (1.0 - on) + p * on;
             }
@@ -362,7 +277,15 @@ impl Sample<'_> {
         out
     }
 
-    fn sphere(&self, c: [f64; 3], q: [f64; 2], r_mm: f64, coated: f64, fp: Footprint) -> [f32; 3] {
+    fn sphere(
+        &self,
+        c: [f64; 3],
+        q: [f64; 2],
+        r_mm: f64,
+        coated: f64,
+        fp: Footprint,
+        grain: f64,
+    ) -> [f32; 3] {
         let room = self.room as f32;
         let d = [q[0] - c[0], q[1] - c[1], -c[2]];
         let n = (d[0] * d[0] + d[1] * d[1] + d[2] * d[2]).sqrt();
@@ -384,7 +307,7 @@ impl Sample<'_> {
         let on = box_cover(r_mm * psi, h, -1.0, r_mm * coated) as f32;
         let mut out = [room * 0.6 * BACKGROUND; 3];
         if on > 0.0 {
-            let ph = self.phosphor(psi, [p[0], p[1]], 1.0);
+            let ph = self.phosphor((p[0] * p[0] + p[1] * p[1]).sqrt(), grain);
             for (o, v) in out.iter_mut().zip(ph) {
                 *o = *o * (1.0 - on) + v * on;
             }
@@ -395,7 +318,7 @@ impl Sample<'_> {
         let fresnel = 0.04 + 0.96 * (1.0 - cos_i.clamp(0.0, 1.0)).powi(5);
         let refl = [0, 1, 2].map(|i| d[i] + 2.0 * cos_i * normal[i]);
         let lamp = [-0.45, -0.55, -0.70];
-        let norm = (lamp[0] * lamp[0] + lamp[1] * lamp[1] + lamp[2] * lamp[2]) as f64;
+        let norm: f64 = lamp[0] * lamp[0] + lamp[1] * lamp[1] + lamp[2] * lamp[2];
         let dot = (refl[0] * lamp[0] + refl[1] * lamp[1] + refl[2] * lamp[2]) / norm.sqrt();
         let glint = if dot > 0.99 {
             30.0 * dot.powi(600)
@@ -481,13 +404,6 @@ pub(crate) fn render_linear(
     Ok((rgb, truth))
 }
 
-impl Light {
-    /// The rings, inner first.
-    pub fn rings(&self) -> &[Ring] {
-        &self.rings
-    }
-}
-
 /// The pixel loop: s×s samples per pixel, rows in parallel.
 fn draw(camera: &Camera, tube: &Tube, light: &Light, scene: &TubeScene, seed: u64) -> Vec<f32> {
     let spec = &camera.spec;
@@ -499,6 +415,7 @@ fn draw(camera: &Camera, tube: &Tube, light: &Light, scene: &TubeScene, seed: u6
     let sample = Sample {
         tube,
         light,
+        profile: Profile::new(light, tube.screen),
         room: scene.room_level,
         seed,
     };
@@ -510,9 +427,11 @@ fn draw(camera: &Camera, tube: &Tube, light: &Light, scene: &TubeScene, seed: u6
         for (x, px) in row.chunks_exact_mut(3).enumerate() {
             let xf = x as f64;
             let q3 = hi[2][0] * xf + hi[2][1] * yf + hi[2][2];
+            let mut grain = 1.0;
             let fp = if q3 > 0.0 {
                 let sx = (hi[0][0] * xf + hi[0][1] * yf + hi[0][2]) / q3;
                 let sy = (hi[1][0] * xf + hi[1][1] * yf + hi[1][2]) / q3;
+                grain = sample.grain([sx, sy]);
                 let j = [
                     (hi[0][0] - sx * hi[2][0]) / q3,
                     (hi[0][1] - sx * hi[2][1]) / q3,
@@ -539,7 +458,7 @@ fn draw(camera: &Camera, tube: &Tube, light: &Light, scene: &TubeScene, seed: u6
                             (hi[0][0] * u + hi[0][1] * v + hi[0][2]) / w3,
                             (hi[1][0] * u + hi[1][1] * v + hi[1][2]) / w3,
                         ];
-                        sample.see(c, q, fp)
+                        sample.see(c, q, fp, grain)
                     };
                     for (a, s) in acc.iter_mut().zip(seen) {
                         *a += s;

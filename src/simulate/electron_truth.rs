@@ -8,7 +8,8 @@
 use super::camera::Camera;
 use super::effects::Effects;
 use super::electron::{ElectronSetup, TubeScreen};
-use super::electron_photo::{Light, Tube, TubeScene};
+use super::electron_light::Light;
+use super::electron_photo::{Tube, TubeScene};
 use super::truth::{CameraTruth, RulerTruth, view_truth};
 use nalgebra::{Matrix2, Matrix3};
 use serde::{Deserialize, Serialize};

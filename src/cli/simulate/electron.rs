@@ -32,7 +32,7 @@ pub struct ElectronArgs {
     pub screen: String,
 
     /// Crystallite size of the film, sets the rings' width (electron)
-    #[arg(long, value_name = "LENGTH", default_value = "4nm")]
+    #[arg(long, value_name = "LENGTH", default_value = "3nm")]
     pub grain: String,
 
     /// Beam divergence, FWHM (electron)

@@ -192,7 +192,7 @@ fn a_bulb_puts_rings_at_r_sin_2theta_and_the_ellipses_hold_the_ring_points() {
         let e = r.ellipse.unwrap();
         let (s, co) = e.angle_rad.sin_cos();
         for k in 0..12 {
-            let phi = k as f64 * 0.5236;
+            let phi = k as f64 * std::f64::consts::FRAC_PI_6;
             let p = [r.radius_mm * phi.cos(), r.radius_mm * phi.sin(), r.depth_mm];
             let t_ray = -c[2] / (p[2] - c[2]);
             let q = [c[0] + t_ray * (p[0] - c[0]), c[1] + t_ray * (p[1] - c[1])];
@@ -261,7 +261,7 @@ fn the_centre_is_saturated_and_the_rings_are_faint() {
         .image
         .get_pixel(c[0].round() as u32, c[1].round() as u32);
     assert_eq!(p.0, [255, 255, 255], "centre {p:?}");
-    assert!(t.rings.iter().all(|r| r.peak_over_glow <= 0.06 + 1e-12));
+    assert!(t.rings.iter().all(|r| r.peak_over_glow <= 0.08 + 1e-12));
     assert!(t.rings.iter().filter(|r| r.peak_over_glow > 0.02).count() >= 2);
     assert_eq!(t.rings[0].relative_intensity, 1.0);
     assert!(t.ghost_px.is_some() && t.ruler.is_some());
