@@ -14,6 +14,8 @@ use crate::{Error, ExitCode};
 use clap::{Args, ValueEnum};
 use std::path::PathBuf;
 
+mod electron;
+
 /// What to simulate.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum SimKind {
@@ -29,6 +31,8 @@ pub enum SimKind {
     Pinhole,
     /// The halo of a random field of opaque particles (exposed on the halo).
     Particles,
+    /// Rings of a polycrystalline film in an electron-diffraction tube.
+    Electron,
 }
 
 impl SimKind {
@@ -167,6 +171,10 @@ pub struct SimulateArgs {
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
 
+    /// The electron kind's own flags.
+    #[command(flatten)]
+    pub electron: electron::ElectronArgs,
+
     /// Overwrite existing files
     #[arg(long)]
     pub force: bool,
@@ -205,6 +213,7 @@ pub fn configure_aperture(
 ) -> Result<Option<(ApertureSetup, Scene, CameraSpec, Effects)>, Error> {
     let base = match a.kind {
         SimKind::Grating | SimKind::Pinhole | SimKind::Particles => return Ok(None),
+        SimKind::Electron => return Ok(None),
         SimKind::TwoSlit => ApertureSetup::two_slit(),
         SimKind::Slit => ApertureSetup::slit(),
         SimKind::Wire => ApertureSetup::wire(),
@@ -263,6 +272,7 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
         SimKind::Slit | SimKind::Wire => 5,
         SimKind::Pinhole => 6,
         SimKind::Particles => 2,
+        SimKind::Electron => 0,
     };
     let camera = CameraSpec {
         width_px: a.width,
@@ -291,6 +301,9 @@ fn common(a: &SimulateArgs) -> Result<(Scene, CameraSpec, Effects), Error> {
 
 /// Runs `fringegauge simulate`.
 pub fn run(a: &SimulateArgs) -> Result<ExitCode, Error> {
+    if a.kind == SimKind::Electron {
+        return electron::run(a);
+    }
     let (ruler, notes) = if let Some(done) = rings::render(a)? {
         done
     } else if let Some((setup, scene, camera, effects)) = configure_aperture(a)? {

@@ -27,6 +27,11 @@ mod camera;
 mod clutter;
 mod direction_map;
 mod effects;
+mod electron;
+mod electron_lattice;
+mod electron_light;
+mod electron_photo;
+mod electron_truth;
 mod farfield;
 mod fringe_photo;
 mod fringe_truth;
@@ -50,6 +55,10 @@ mod tests;
 pub use aperture::{Aperture, ApertureSetup};
 pub use camera::{Camera, CameraSpec, Framing};
 pub use effects::Effects;
+pub use electron::{ElectronSetup, TubeScreen, electron_wavelength_m};
+pub use electron_lattice::{Lattice, LatticeFamily};
+pub use electron_photo::TubeScene;
+pub use electron_truth::{ElectronTruth, EllipseTruth, RingTruth};
 pub use farfield::{GratingProfile, GratingSetup};
 pub use fringe_truth::{ApertureInputs, ApertureTruth, FringePoint, FringeTruth};
 pub use output::truth_path;
@@ -192,4 +201,30 @@ pub fn render_particles(
     seed: u64,
 ) -> Result<SimPhoto<ParticlesTruth>, SimError> {
     ring_photo::render_particles(setup, scene, camera, effects, seed, true)
+}
+
+/// Renders a phone photo of an electron-diffraction tube in a darkened room: the glowing
+/// phosphor, the saturated centre spot, the film's rings and a ruler, with the truth
+/// ([`ElectronTruth`]) of every ring. `seed` drives every random choice.
+///
+/// ```no_run
+/// use fringegauge::simulate::*;
+/// let photo = render_electron(
+///     &ElectronSetup::default(),
+///     &TubeScene::default(),
+///     &CameraSpec::default(),
+///     &Effects::default(),
+///     7,
+/// )?;
+/// photo.write(std::path::Path::new("gold.jpg"), 92, false)?;
+/// # Ok::<(), SimError>(())
+/// ```
+pub fn render_electron(
+    setup: &ElectronSetup,
+    scene: &TubeScene,
+    camera: &CameraSpec,
+    effects: &Effects,
+    seed: u64,
+) -> Result<SimPhoto<ElectronTruth>, SimError> {
+    electron_photo::render(setup, scene, camera, effects, seed)
 }

@@ -218,7 +218,7 @@ impl Screen {
         out
     }
 
-    fn ruler_over(
+    pub(crate) fn ruler_over(
         &self,
         r: &PlacedRuler,
         under: [f32; 3],

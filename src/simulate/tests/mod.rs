@@ -1,5 +1,6 @@
 //! Whole-photo checks: the truth against the rendered pixels, scenes, errors and files.
 
+mod electron;
 mod files;
 mod fringes;
 mod image_truth;
