@@ -18,8 +18,8 @@ use symmetry::{Grid, radial_symmetry_centre};
 
 /// A first estimate of a ring pattern's centre, px: the radial-symmetry centre of the
 /// coarse map's gradients within `reach` (a share of the frame's larger side) of the
-/// brightest region, clipped blocks left out, started from the centroid of the region's
-/// clipped core where it has one (an overexposed centre is round, however speckled). Errors when the frame holds no bright
+/// brightest region, clipped blocks left out; or, where the region has an overexposed
+/// core, the centroid of that core. Errors when the frame holds no bright
 /// region or the gradients do not fix a centre.
 pub fn start_centre(map: &CoarseMap, reach: f64) -> Result<Vector2<f64>, FindError> {
     let blob = find_blobs(map, 8.0, 1).into_iter().next().ok_or_else(|| {
@@ -33,7 +33,12 @@ pub fn start_centre(map: &CoarseMap, reach: f64) -> Result<Vector2<f64>, FindErr
     let b = map.block as f64;
     let to_grid = |px: f64| (px - 0.5 * (b - 1.0)) / b;
     let near = Vector2::new(to_grid(blob.centroid.x), to_grid(blob.centroid.y));
-    let near = clipped_centroid(map, near, 2.0 * blob.radius_px / b + 2.0).unwrap_or(near);
+    // An overexposed core is round however speckled, and nothing else in the frame moves
+    // its centroid; a ruler's ticks and edges can pull the gradient lines, so where there
+    // is a core its centroid is the start, and the gradients serve only without one.
+    if let Some(core) = clipped_centroid(map, near, 2.0 * blob.radius_px / b + 2.0) {
+        return Ok(core * b + Vector2::repeat(0.5 * (b - 1.0)));
+    }
     let skip: Vec<bool> = map.clipped.iter().map(|&c| c > 0).collect();
     let grid = Grid {
         values: &map.mean,

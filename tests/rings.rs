@@ -1,0 +1,104 @@
+//! End to end on simulated ring photos: `fringegauge simulate pinhole` renders the far
+//! field numerically (projection-slice transform of the disc, no J1 formula), and
+//! `fringegauge pinhole` must recover the diameter within its stated expanded uncertainty
+//! (U = 2u) after the effective widening of the rings by the Gaussian beam.
+
+mod common;
+use common::Bench;
+use serde_json::Value;
+
+fn simulate(b: &Bench, name: &str, args: &[&str]) -> Value {
+    let mut a = vec!["simulate", "pinhole", "--out", name];
+    a.extend_from_slice(args);
+    let r = b.run(&a);
+    assert_eq!(r.code, 0, "simulate failed: {}", r.stderr);
+    let text = std::fs::read_to_string(b.path(&format!("{name}.truth.json"))).unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+fn ruler_flag(truth: &Value) -> String {
+    let r = &truth["ruler"];
+    let (s, e) = (&r["start_px"], &r["end_px"]);
+    let p = |f: f64, i: usize| {
+        let a = s[i].as_f64().unwrap();
+        a + f * (e[i].as_f64().unwrap() - a)
+    };
+    format!(
+        "{:.0},{:.0},{:.0},{:.0}",
+        p(0.05, 0),
+        p(0.05, 1),
+        p(0.95, 0),
+        p(0.95, 1)
+    )
+}
+
+fn measure(b: &Bench, name: &str, truth: &Value) -> (i32, Value, String) {
+    let wavelength = format!(
+        "{}nm±0.5nm",
+        truth["inputs"]["wavelength_m"].as_f64().unwrap() * 1e9
+    );
+    let distance = format!("{}m±1mm", truth["inputs"]["distance_m"].as_f64().unwrap());
+    let ruler = ruler_flag(truth);
+    let r = b.run(&[
+        "pinhole",
+        name,
+        "--wavelength",
+        &wavelength,
+        "--distance",
+        &distance,
+        "--ruler",
+        &ruler,
+        "--json",
+    ]);
+    let record = serde_json::from_str(&r.stdout).unwrap_or(Value::Null);
+    (r.code, record, r.stderr)
+}
+
+#[test]
+fn pinhole_diameter_and_centre_from_a_simulated_photo() {
+    let b = Bench::new();
+    let truth = simulate(&b, "pin.png", &[]);
+    let (code, record, err) = measure(&b, "pin.png", &truth);
+    assert_eq!(code, 0, "{err}");
+    let d = &record["results"][0];
+    assert_eq!(d["name"], "diameter");
+    let (v, u) = (d["value"].as_f64().unwrap(), d["u"].as_f64().unwrap());
+    let truth_d = truth["inputs"]["diameter_m"].as_f64().unwrap();
+    // The simulator's Gaussian beam dims the hole's rim and widens the first dark ring by
+    // about 0.24 % (its own note): the check allows 2u about the nominal diameter plus that.
+    assert!(
+        (v - truth_d).abs() <= 2.0 * u + 0.0025 * truth_d,
+        "D {v} ± {u} vs {truth_d}"
+    );
+    // DESIGN §6 asks ≤ 0.05 px bias on clean rings; this photo has speckle, glare and a
+    // ruler across the rings, so the check is its own stated uncertainty (3u) + 0.1 px.
+    let c = &record["features"][0];
+    assert_eq!(c["label"], "centre");
+    for i in 0..2 {
+        let (px, pu) = (c["px"][i].as_f64().unwrap(), c["px_u"][i].as_f64().unwrap());
+        let t = truth["centre_px"][i].as_f64().unwrap();
+        assert!(
+            (px - t).abs() <= 3.0 * pu + 0.1,
+            "centre {i}: {px} ± {pu} vs {t}"
+        );
+    }
+}
+
+#[test]
+fn a_photo_without_rings_is_a_measurement_failure() {
+    // A blank screen: the photo reads, but there is no pattern (exit 1).
+    let b = Bench::new();
+    let img = image::RgbImage::from_pixel(320, 240, image::Rgb([90, 90, 90]));
+    img.save(b.path("blank.png")).unwrap();
+    let r = b.run(&[
+        "pinhole",
+        "blank.png",
+        "--wavelength",
+        "650nm",
+        "--distance",
+        "2m",
+        "--mm-per-px",
+        "0.1",
+    ]);
+    assert_eq!(r.code, 1, "{}", r.stderr);
+}
