@@ -4,36 +4,8 @@
 //! uncertainty (U = 2u).
 
 mod common;
-use common::{Bench, Run};
+use common::{Bench, Run, ruler_flag, simulate};
 use serde_json::Value;
-
-/// Simulates `kind` with `args` into `name`, returns the truth.
-fn simulate(b: &Bench, kind: &str, name: &str, args: &[&str]) -> Value {
-    let mut a = vec!["simulate", kind, "--out", name];
-    a.extend_from_slice(args);
-    let r = b.run(&a);
-    assert_eq!(r.code, 0, "simulate failed: {}", r.stderr);
-    let text = std::fs::read_to_string(b.path(&format!("{name}.truth.json"))).unwrap();
-    serde_json::from_str(&text).unwrap()
-}
-
-/// The `--ruler` stretch the simulator printed: the truth ruler's ends, 5 % inward, as a
-/// person would click them roughly.
-fn ruler_flag(truth: &Value) -> String {
-    let r = &truth["ruler"];
-    let (s, e) = (&r["start_px"], &r["end_px"]);
-    let p = |f: f64, i: usize| {
-        let a = s[i].as_f64().unwrap();
-        a + f * (e[i].as_f64().unwrap() - a)
-    };
-    format!(
-        "{:.0},{:.0},{:.0},{:.0}",
-        p(0.05, 0),
-        p(0.05, 1),
-        p(0.95, 0),
-        p(0.95, 1)
-    )
-}
 
 fn input(truth: &Value, key: &str) -> f64 {
     truth["inputs"][key].as_f64().unwrap()

@@ -4,33 +4,8 @@
 //! (U = 2u) after the effective widening of the rings by the Gaussian beam.
 
 mod common;
-use common::Bench;
+use common::{Bench, ruler_flag, simulate};
 use serde_json::Value;
-
-fn simulate(b: &Bench, name: &str, args: &[&str]) -> Value {
-    let mut a = vec!["simulate", "pinhole", "--out", name];
-    a.extend_from_slice(args);
-    let r = b.run(&a);
-    assert_eq!(r.code, 0, "simulate failed: {}", r.stderr);
-    let text = std::fs::read_to_string(b.path(&format!("{name}.truth.json"))).unwrap();
-    serde_json::from_str(&text).unwrap()
-}
-
-fn ruler_flag(truth: &Value) -> String {
-    let r = &truth["ruler"];
-    let (s, e) = (&r["start_px"], &r["end_px"]);
-    let p = |f: f64, i: usize| {
-        let a = s[i].as_f64().unwrap();
-        a + f * (e[i].as_f64().unwrap() - a)
-    };
-    format!(
-        "{:.0},{:.0},{:.0},{:.0}",
-        p(0.05, 0),
-        p(0.05, 1),
-        p(0.95, 0),
-        p(0.95, 1)
-    )
-}
 
 fn measure(b: &Bench, name: &str, truth: &Value) -> (i32, Value, String) {
     let wavelength = format!(
@@ -57,7 +32,7 @@ fn measure(b: &Bench, name: &str, truth: &Value) -> (i32, Value, String) {
 #[test]
 fn pinhole_diameter_and_centre_from_a_simulated_photo() {
     let b = Bench::new();
-    let truth = simulate(&b, "pin.png", &[]);
+    let truth = simulate(&b, "pinhole", "pin.png", &[]);
     let (code, record, err) = measure(&b, "pin.png", &truth);
     assert_eq!(code, 0, "{err}");
     let d = &record["results"][0];

@@ -539,17 +539,6 @@ fn finish(
             label: feat.label.replace("minimum ", ""),
         });
     }
-    if let Some((a, b)) = m.map.stretch_px {
-        marks.push(Mark::Stretch {
-            from: [a.x, a.y],
-            to: [b.x, b.y],
-            label: m.map.method.name().to_string(),
-        });
-    }
-    marks.push(Mark::ScaleBar {
-        mm_per_px: m.map.mm_per_px(),
-        length_mm: 10.0,
-    });
-    marks.push(Mark::Caption(f.caption));
+    marks.extend(output::scale_marks(&m.map, f.caption));
     output::emit_with_plot(record, &m.photo, &m.bytes, &marks, Some(&plot), out, clock)
 }

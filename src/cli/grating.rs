@@ -644,21 +644,13 @@ fn overlay_marks(map: &ScreenMap, found: &FoundOrders, sol: &GratingSolution) ->
             label: format!("{m:+}").replace("+0", "0"),
         });
     }
-    if let Some((a, b)) = map.stretch_px {
-        marks.push(Mark::Stretch {
-            from: [a.x, a.y],
-            to: [b.x, b.y],
-            label: map.method.name().to_string(),
-        });
-    }
-    marks.push(Mark::ScaleBar {
-        mm_per_px: map.mm_per_px(),
-        length_mm: 10.0,
-    });
-    marks.push(Mark::Caption(format!(
-        "{} {} (k = 2)",
-        sol.measurand,
-        quantity::format_si(sol.estimate.value, 2.0 * sol.estimate.u, "m"),
-    )));
+    marks.extend(output::scale_marks(
+        map,
+        format!(
+            "{} {} (k = 2)",
+            sol.measurand,
+            quantity::format_si(sol.estimate.value, 2.0 * sol.estimate.u, "m"),
+        ),
+    ));
     marks
 }

@@ -310,3 +310,22 @@ pub fn monte_carlo_note(
         }
     )
 }
+
+/// The marks every overlay ends with: the scale's calibration stretch (where it has one),
+/// a 10 mm scale bar and the caption.
+pub fn scale_marks(map: &ScreenMap, caption: String) -> Vec<Mark> {
+    let mut marks = Vec::with_capacity(3);
+    if let Some((a, b)) = map.stretch_px {
+        marks.push(Mark::Stretch {
+            from: [a.x, a.y],
+            to: [b.x, b.y],
+            label: map.method.name().to_string(),
+        });
+    }
+    marks.push(Mark::ScaleBar {
+        mm_per_px: map.mm_per_px(),
+        length_mm: 10.0,
+    });
+    marks.push(Mark::Caption(caption));
+    marks
+}

@@ -67,7 +67,7 @@ const START_REACH: f64 = 0.3;
 /// radial profile in screen mm.
 pub(super) fn measure_rings(
     photo_args: &PhotoArgs,
-    scale: &crate::cli::args::ScaleArgs,
+    scale: &ScaleArgs,
     book: &mut InputBook,
     wavelength_m: Option<f64>,
     clock: &mut Clock,
@@ -427,18 +427,7 @@ pub(super) fn finish_rings(
             }),
         }
     }
-    if let Some((a, b)) = m.map.stretch_px {
-        marks.push(Mark::Stretch {
-            from: [a.x, a.y],
-            to: [b.x, b.y],
-            label: m.map.method.name().to_string(),
-        });
-    }
-    marks.push(Mark::ScaleBar {
-        mm_per_px: m.map.mm_per_px(),
-        length_mm: 10.0,
-    });
-    marks.push(Mark::Caption(f.caption));
+    marks.extend(output::scale_marks(&m.map, f.caption));
     output::emit_with_plot(record, &m.photo, &m.bytes, &marks, Some(&plot), out, clock)
 }
 
