@@ -353,6 +353,7 @@ fn measure_profile(
         scale,
         book,
         stretch,
+        photo.info.exif.focal_length_35mm,
     )?;
     clock.lap("scale");
     let track = fringe_track(&plane, &band);

@@ -97,6 +97,7 @@ pub fn run(args: &GratingArgs) -> Result<ExitCode, Error> {
         &args.scale,
         &mut book,
         stretch,
+        photo.info.exif.focal_length_35mm,
     )?;
     clock.lap("scale");
     let found = locate_orders(&photo, channel, candidates, &cmap, &map, &inputs)?;

@@ -10,7 +10,7 @@ use crate::record::overlay::{self, Mark};
 use crate::record::plot::{self, ProfilePlot};
 use crate::record::{self, Record, RecordError};
 use crate::scale::ruler::{self, Marks, RulerClass, RulerSpec};
-use crate::scale::{ScaleMethod, ScreenMap, points};
+use crate::scale::{ScaleMethod, ScreenMap, camera, points};
 use crate::{Error, ExitCode};
 use nalgebra::Vector2;
 use std::path::Path;
@@ -79,6 +79,7 @@ pub fn screen_map(
     args: &ScaleArgs,
     book: &mut InputBook,
     pattern_stretch: Option<(Vector2<f64>, Vector2<f64>)>,
+    focal_35mm: Option<f64>,
 ) -> Result<ScreenMap, Error> {
     let given = [
         args.ruler.is_some(),
@@ -133,7 +134,7 @@ pub fn screen_map(
             marks: Marks::Ruler(class),
         };
         let (map, _fit) = ruler::measure(raster, &spec)?;
-        return Ok(map);
+        return Ok(squared(map, raster, focal_35mm));
     }
     if let Some(text) = &args.grid {
         let pitch = positive_flag("grid", text, Dimension::Length)?;
@@ -148,7 +149,7 @@ pub fn screen_map(
             marks: Marks::Grid,
         };
         let (map, _fit) = ruler::measure(raster, &spec)?;
-        return Ok(map);
+        return Ok(squared(map, raster, focal_35mm));
     }
     if let Some(text) = &args.points {
         let [x1, y1, x2, y2] = parse_two_points("points", text)?;
@@ -183,6 +184,33 @@ pub fn screen_map(
     };
     map = map.with_component("given mm per px", u_rel);
     Ok(map)
+}
+
+/// The map of a ruler or a row of grid lines with its across scale set by the camera's
+/// geometry ([`camera::square_across`]), and a note of what that did.
+fn squared(mut map: ScreenMap, raster: &dyn Raster, focal_35mm: Option<f64>) -> ScreenMap {
+    let cam = camera::CameraGeometry::for_frame(
+        raster.width() as f64,
+        raster.height() as f64,
+        focal_35mm,
+    );
+    let Some(c) = camera::square_across(&mut map, &cam) else {
+        map.warnings.push(
+            "the view is too oblique for the camera's geometry to set the scale across the \
+             ruler; it is taken equal to the scale along it"
+                .into(),
+        );
+        return map;
+    };
+    map.assumptions.push(format!(
+        "scale across the ruler from the camera's geometry (pinhole camera, principal point \
+         at the frame's centre; {}): {:.4}× the along scale's, screen axes at {:.1}° \
+         through the camera",
+        cam.source,
+        1.0 / c.gamma,
+        c.axes_angle.to_degrees()
+    ));
+    map.with_component("scale across the ruler (focal length)", c.u_rel)
 }
 
 /// Writes what the output flags ask for and prints the report. Returns the exit code.

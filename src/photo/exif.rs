@@ -23,6 +23,10 @@ pub(crate) fn read(bytes: &[u8]) -> (u16, ExifInfo) {
             .and_then(ascii)
             .or_else(|| field(Tag::DateTime).and_then(ascii)),
         focal_length_mm: field(Tag::FocalLength).and_then(positive_rational),
+        focal_length_35mm: field(Tag::FocalLengthIn35mmFilm)
+            .and_then(|v| v.get_uint(0))
+            .filter(|&f| f > 0)
+            .map(f64::from),
         exposure_s: field(Tag::ExposureTime).and_then(positive_rational),
         f_number: field(Tag::FNumber).and_then(positive_rational),
         iso: field(Tag::PhotographicSensitivity)

@@ -167,6 +167,9 @@ pub struct ExifInfo {
     /// Lens focal length in millimetres.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub focal_length_mm: Option<f64>,
+    /// Focal length of the same view on 35 mm film (36 × 24 mm), mm.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub focal_length_35mm: Option<f64>,
     /// Exposure time in seconds.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub exposure_s: Option<f64>,

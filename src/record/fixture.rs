@@ -19,6 +19,7 @@ pub(crate) fn photo_info() -> PhotoInfo {
             model: Some("EC-1".into()),
             datetime: Some("2025:03:14 10:20:30".into()),
             focal_length_mm: Some(24.0),
+            focal_length_35mm: Some(26.0),
             exposure_s: Some(0.01),
             f_number: Some(4.0),
             iso: Some(200),

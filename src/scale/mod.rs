@@ -4,6 +4,7 @@
 //! similarity and a full perspective correction are handled alike downstream; its
 //! uncertainty is carried as a relative scale uncertainty.
 
+pub mod camera;
 pub mod points;
 pub mod profile;
 pub mod ruler;
