@@ -77,3 +77,31 @@ fn a_photo_without_rings_is_a_measurement_failure() {
     ]);
     assert_eq!(r.code, 1, "{}", r.stderr);
 }
+
+#[test]
+fn a_pinhole_seen_square_on_and_from_20_degrees_gives_the_same_diameter() {
+    // A yawed view foreshortens the screen along the ruler only; the map squares the
+    // scale across it from the camera's geometry, so the rings stay circles in mm.
+    let b = Bench::new();
+    let square = simulate(&b, "pinhole", "square.png", &["--camera-yaw", "0deg"]);
+    let yawed = simulate(&b, "pinhole", "yawed.png", &["--camera-yaw", "20deg"]);
+    let (c0, r0, e0) = measure(&b, "square.png", &square);
+    let (c1, r1, e1) = measure(&b, "yawed.png", &yawed);
+    assert_eq!(c0, 0, "{e0}");
+    assert_eq!(c1, 0, "{e1}");
+    let d = |r: &Value| {
+        let x = &r["results"][0];
+        (x["value"].as_f64().unwrap(), x["u"].as_f64().unwrap())
+    };
+    let ((d0, u0), (d1, u1)) = (d(&r0), d(&r1));
+    assert!(
+        (d0 - d1).abs() <= 2.0 * u0.hypot(u1),
+        "square {d0} ± {u0}, yawed {d1} ± {u1}"
+    );
+    // Both near the truth: within 2u plus the simulator's 0.24 % beam widening.
+    let t = square["inputs"]["diameter_m"].as_f64().unwrap();
+    assert!(
+        (d1 - t).abs() <= 2.0 * u1 + 0.0025 * t,
+        "{d1} ± {u1} vs {t}"
+    );
+}

@@ -6,6 +6,7 @@ pub mod fringes;
 pub mod grating;
 pub mod inputs;
 pub mod output;
+pub mod particles;
 pub mod rings;
 pub mod setup;
 pub mod simulate;
@@ -50,6 +51,9 @@ pub enum Command {
     /// Diameter of a pinhole from its Airy rings
     #[command(after_long_help = args::LASER_CAUTION)]
     Pinhole(rings::PinholeArgs),
+    /// Mean diameter, spread and size distribution of particles from their halo
+    #[command(after_long_help = args::LASER_CAUTION)]
+    Particles(particles::ParticlesArgs),
     /// Render a synthetic photo with known truth (PHOTO.truth.json beside it)
     Simulate(simulate::SimulateArgs),
     /// Simulate a grating photo, measure it, and say where the files went
@@ -67,6 +71,7 @@ pub fn run(cli: Cli) -> Result<ExitCode, Error> {
         Command::TwoSlit(a) => fringes::run_two_slit(&a),
         Command::Slit(a) => fringes::run_slit(&a),
         Command::Pinhole(a) => rings::run_pinhole(&a),
+        Command::Particles(a) => particles::run(&a),
         Command::Simulate(a) => simulate::run(&a),
         Command::Demo(a) => tools::demo(&a),
         Command::Schema => {

@@ -102,10 +102,11 @@ pub(super) fn measure_rings(
     clock.lap("centre start");
     let stretch = scale.grid.as_ref().map(|_| grid_stretch(start_px, w, h));
     let mut map = output::screen_map(
-        &photo.plane(forced.unwrap_or(Channel::Luma)),
+        &photo.plane(scale_channel(wavelength_m)),
         scale,
         book,
         stretch,
+        photo.info.exif.focal_length_35mm,
     )?;
     clock.lap("scale");
     let start_mm = map.to_mm(start_px);
@@ -153,6 +154,19 @@ pub(super) fn measure_rings(
     })
 }
 
+/// The channel the scale is read in: the one the laser lights least, so that the
+/// pattern's light and speckle over a ruler or grid do not break up its marks (a colour
+/// camera's blue pixels barely see red light, its red pixels barely see green or blue;
+/// the channel bands are common practice for Bayer sensors). Luma when the wavelength is
+/// not known.
+fn scale_channel(wavelength_m: Option<f64>) -> Channel {
+    match wavelength_m.map(|w| w * 1e9) {
+        Some(nm) if nm >= 570.0 => Channel::B,
+        Some(nm) if nm > 0.0 => Channel::R,
+        _ => Channel::Luma,
+    }
+}
+
 fn as_profile(p: &RadialProfile) -> FringeProfile {
     FringeProfile {
         x_mm: p.r_mm.clone(),
@@ -180,14 +194,11 @@ fn frame_reach_mm(map: &ScreenMap, c_mm: Vector2<f64>, w: f64, h: f64) -> f64 {
     .fold(0.0, f64::max)
 }
 
-/// A stretch clear of the bright centre, for counting graph-paper lines: horizontal,
-/// a tenth of the frame below (or above) the centre.
+/// A stretch for counting graph-paper lines: horizontal, on the side of the centre with
+/// more room, a third of the frame away (out of the bright centre and most of a halo's
+/// speckle, whose grains break up the lines).
 fn grid_stretch(c: Vector2<f64>, w: f64, h: f64) -> (Vector2<f64>, Vector2<f64>) {
-    let dy = if c.y + 0.1 * h < h - 2.0 {
-        0.1 * h
-    } else {
-        -0.1 * h
-    };
+    let dy = if c.y < 0.5 * h { h / 3.0 } else { -h / 3.0 };
     let y = (c.y + dy).clamp(1.0, h - 2.0);
     (Vector2::new(0.1 * w, y), Vector2::new(0.9 * w, y))
 }
@@ -358,6 +369,7 @@ pub fn run_pinhole(args: &PinholeArgs) -> Result<ExitCode, Error> {
             markers,
             title: "pinhole: radial profile (log scale)".into(),
             caption,
+            below: None,
         },
         &args.physics,
         &args.output,
@@ -372,6 +384,8 @@ pub(super) struct RingPlot<'a> {
     pub markers: Vec<(f64, String)>,
     pub title: String,
     pub caption: String,
+    /// A second plot drawn under the profile in the `--plot` file (the size distribution).
+    pub below: Option<ProfilePlot<'a>>,
 }
 
 /// Plot, overlay marks and outputs. The profile is plotted as log10 of the intensity:
@@ -408,7 +422,18 @@ pub(super) fn finish_rings(
         markers: f.markers,
     };
     if let Some(path) = &physics.plot {
-        crate::record::plot::write_plot(path, &plot, 1200, 700, out.force)?;
+        match &f.below {
+            None => crate::record::plot::write_plot(path, &plot, 1200, 700, out.force)?,
+            Some(below) => {
+                let top = crate::record::plot::render_profile(&plot, 1200, 700)?;
+                let bottom = crate::record::plot::render_profile(below, 1200, 560)?;
+                let mut both = image::RgbImage::new(1200, 700 + 560);
+                image::imageops::replace(&mut both, &top, 0, 0);
+                image::imageops::replace(&mut both, &bottom, 0, 700);
+                let png = crate::record::encode_png(&both)?;
+                crate::record::write_atomic(path, &png, out.force)?;
+            }
+        }
     }
     let mut marks = Vec::new();
     for feat in &record.features {

@@ -1,6 +1,6 @@
 //! Numerics with no image types: Levenberg–Marquardt least squares, straight lines,
 //! circles and ellipses through points, non-negative least squares, Bessel functions,
-//! sub-sample extrema and FFT period estimation. Nothing here knows about photos, screens
+//! Gauss–Hermite quadrature, sub-sample extrema and FFT period estimation. Nothing here knows about photos, screens
 //! or physics; the stages above call these with plain numbers.
 
 pub mod bessel;
@@ -11,6 +11,7 @@ pub mod line;
 pub mod lm;
 pub mod nnls;
 pub mod peak;
+pub mod quadrature;
 pub mod spectral;
 
 use thiserror::Error;

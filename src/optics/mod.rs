@@ -6,6 +6,7 @@ pub mod airy;
 pub mod electron;
 pub mod grating;
 pub mod lattice;
+pub mod particles;
 pub mod pinhole;
 pub mod profile;
 pub mod slit;

@@ -34,8 +34,8 @@ pub use schema::schema_json;
 pub use text::render_text;
 pub use timings::Timings;
 pub use types::{
-    BudgetLine, Ellipse, Feature, Fit, FitParameter, Input, InputSource, Record, ResultEntry,
-    SCHEMA_ID, ScaleInfo, Setup, Tool, ValueU,
+    BudgetLine, Distribution, DistributionBin, Ellipse, Feature, Fit, FitParameter, Input,
+    InputSource, Record, ResultEntry, SCHEMA_ID, ScaleInfo, Setup, Tool, ValueU,
 };
 
 use crate::ExitCode;

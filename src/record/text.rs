@@ -22,6 +22,7 @@ pub fn render_text(record: &Record) -> String {
     features(&mut out, record);
     fit(&mut out, record);
     results(&mut out, record);
+    distribution(&mut out, record);
     notes(&mut out, "WARNINGS", &record.warnings);
     notes(&mut out, "ASSUMPTIONS", &record.assumptions);
     if !record.timings_ms.is_empty() {
@@ -212,6 +213,50 @@ fn result(out: &mut String, res: &ResultEntry) {
              not linear over u)"
         );
     }
+}
+
+/// The free size distribution as a table by number, with the fitted shape beside it;
+/// bins holding under 0.2 % in both are left out.
+fn distribution(out: &mut String, r: &Record) {
+    let Some(d) = &r.distribution else { return };
+    let (factor, prefix) = display_prefix(d.mean_m, "m");
+    let _ = writeln!(
+        out,
+        "\nSIZES  by number, free (NNLS) beside the fitted {}; free mean {} {prefix}m, SD {} \
+         {prefix}m",
+        d.shape,
+        sig3(d.mean_m / factor),
+        sig3(d.sd_m / factor)
+    );
+    let _ = writeln!(
+        out,
+        "    {:>14} {:>8} {:<20} {:>8} {:>8}",
+        "diameter", "number", "", "fitted", "volume"
+    );
+    for b in &d.bins {
+        if b.number_fraction < 0.002 && b.parametric_fraction < 0.002 {
+            continue;
+        }
+        let share = 100.0 * b.number_fraction;
+        let line = format!(
+            "    {:>11} {prefix}m {:>6.1} %  {:<20} {:>6.1} % {:>6.1} %",
+            sig3(b.diameter_m / factor),
+            share,
+            bar(share * 100.0 / 25.0),
+            100.0 * b.parametric_fraction,
+            100.0 * b.volume_fraction
+        );
+        let _ = writeln!(out, "{}", clip(line.trim_end(), WIDTH));
+    }
+}
+
+/// Three significant digits, for table columns.
+fn sig3(x: f64) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let digits = (2 - x.abs().log10().floor() as i32).max(0) as usize;
+    format!("{x:.digits$}")
 }
 
 fn notes(out: &mut String, title: &str, items: &[String]) {

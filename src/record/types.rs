@@ -34,6 +34,9 @@ pub struct Record {
     pub fit: Option<Fit>,
     /// The measured values.
     pub results: Vec<ResultEntry>,
+    /// A measured size distribution (particle ensembles).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub distribution: Option<Distribution>,
     /// Things the technician should look at.
     #[serde(default)]
     pub warnings: Vec<String>,
@@ -43,6 +46,40 @@ pub struct Record {
     /// Wall time per stage in milliseconds, in pipeline order.
     #[serde(default)]
     pub timings_ms: Timings,
+}
+
+/// A size distribution free of an assumed shape, beside the fitted parametric one.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Distribution {
+    /// How the free distribution was solved, and its smoothing chosen.
+    pub method: String,
+    /// The parametric shape fitted beside it ("normal" or "lognormal").
+    pub shape: String,
+    /// Number-mean diameter of the free distribution, m.
+    pub mean_m: f64,
+    /// Its standard deviation, m.
+    pub sd_m: f64,
+    /// Diameter bins in increasing size.
+    pub bins: Vec<DistributionBin>,
+}
+
+/// One diameter bin of a [`Distribution`].
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DistributionBin {
+    /// Nominal diameter of the bin, m.
+    pub diameter_m: f64,
+    /// Lower edge, m.
+    pub lower_m: f64,
+    /// Upper edge, m.
+    pub upper_m: f64,
+    /// Share of the particles by number.
+    pub number_fraction: f64,
+    /// Share by volume.
+    pub volume_fraction: f64,
+    /// The fitted parametric distribution's share by number.
+    pub parametric_fraction: f64,
 }
 
 /// The program that wrote a record.
@@ -392,6 +429,7 @@ impl Record {
             features: Vec::new(),
             fit: None,
             results: Vec::new(),
+            distribution: None,
             warnings: Vec::new(),
             assumptions: Vec::new(),
             timings_ms: Timings::default(),
