@@ -73,7 +73,7 @@ fn benches(c: &mut Criterion) {
     )
     .expect("12 MP photo");
     sim.write(&pinhole, 92, true).expect("written");
-    let ruler = ruler_flag(sim.truth.ruler.clone().expect("ruler"));
+    let ruler = ruler_flag(sim.truth.ruler.expect("ruler"));
     let distance = format!("{}m±2mm", setup.distance_m);
     measure(c, "pinhole", &pinhole, &ruler, &distance);
 
@@ -88,7 +88,7 @@ fn benches(c: &mut Criterion) {
     )
     .expect("12 MP photo");
     sim.write(&particles, 92, true).expect("written");
-    let ruler = ruler_flag(sim.truth.ruler.clone().expect("ruler"));
+    let ruler = ruler_flag(sim.truth.ruler.expect("ruler"));
     let distance = format!("{}m±2mm", setup.distance_m);
     measure(c, "particles", &particles, &ruler, &distance);
 }
