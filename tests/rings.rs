@@ -105,3 +105,27 @@ fn a_pinhole_seen_square_on_and_from_20_degrees_gives_the_same_diameter() {
         "{d1} ± {u1} vs {t}"
     );
 }
+
+#[test]
+fn pinholes_across_the_range_from_50_to_500_micrometres() {
+    // The ends of the range a laser-drilled pinhole check covers; the camera frames four
+    // to six dark rings, as a person would to keep the ruler's millimetres resolved.
+    for (d, l, rings) in [("50um", "1m", "4"), ("0.5mm", "2.5m", "6")] {
+        let b = Bench::new();
+        let truth = simulate(
+            &b,
+            "pinhole",
+            "pin.jpg",
+            &["--diameter", d, "--distance", l, "--frame-orders", rings],
+        );
+        let (code, record, err) = measure(&b, "pin.jpg", &truth);
+        assert_eq!(code, 0, "{d}: {err}");
+        let r = &record["results"][0];
+        let (v, u) = (r["value"].as_f64().unwrap(), r["u"].as_f64().unwrap());
+        let t = truth["inputs"]["diameter_m"].as_f64().unwrap();
+        assert!(
+            (v - t).abs() <= 2.0 * u + 0.0025 * t,
+            "{d}: {v} ± {u} vs {t}"
+        );
+    }
+}
