@@ -51,26 +51,40 @@ pub fn refine_centre(
     annulus: Annulus,
 ) -> Result<RingCentre, FindError> {
     let mm_px = map.mm_per_px_at(map.to_px(start_mm));
-    // Enough pixels per pass for the shape of the rings, not every one: about 1.5 million.
+    // Enough pixels per pass for the shape of the rings, not every one: about 1.5 million
+    // for the passes that set the result, 0.4 million while the centre is still moving
+    // by more than half a pixel.
     let area_px = PI * (annulus.outer_mm / mm_px).powi(2);
     let frame = (raster.width() * raster.height()) as f64;
-    let stride = (area_px.min(frame) / 1.5e6).sqrt().ceil().max(1.0) as usize;
-    let opts = RadialOptions {
-        sectors: SECTORS,
-        bin_mm: 0.5 * mm_px * stride as f64,
-        r_max_mm: annulus.outer_mm,
-        stride,
+    let options = |pixels: f64| {
+        let stride = (area_px.min(frame) / pixels).sqrt().ceil().max(1.0) as usize;
+        RadialOptions {
+            sectors: SECTORS,
+            bin_mm: 0.5 * mm_px * stride as f64,
+            r_max_mm: annulus.outer_mm,
+            stride,
+        }
     };
+    let (quick, fine) = (options(0.4e6), options(1.5e6));
     let mut centre = start_mm;
     let mut last = None;
+    let mut moving = true;
     for pass in 0..MAX_PASSES {
-        let cells = RadialCells::tabulate(raster, map, centre, &opts);
+        let opts = if moving { &quick } else { &fine };
+        let cells = RadialCells::tabulate(raster, map, centre, opts);
         // Far from the centre, a whole-bin search; near it, the linearised step.
         let coarse = pass < 2;
         let (shift, cov, used) = sector_fit(&cells, annulus, coarse)?;
         centre += shift;
         last = Some((cov, used, pass + 1));
-        if !coarse && shift.norm() < 0.01 * mm_px {
+        if moving {
+            moving = coarse || shift.norm() > 0.5 * mm_px;
+            continue;
+        }
+        // Done when the step is a hundredth of a pixel, or well inside the centre's own
+        // uncertainty (speckle keeps a halo's centre jittering at that level).
+        let sigma = cov.symmetric_eigenvalues().max().max(0.0).sqrt();
+        if shift.norm() < (0.01 * mm_px).max(0.3 * sigma) {
             break;
         }
     }
