@@ -66,6 +66,77 @@ pub fn sandwich_covariance(
     Some(&bread * meat * &bread * dof)
 }
 
+/// The autocorrelation of a long residual series at lags 0, 1, …, K, Bartlett-tapered
+/// (ρ̃ₖ = (1 − k/(K + 1))·ρₖ, which keeps the implied covariance positive semi-definite,
+/// Newey & West 1987), K twice the lag at which ρ first falls below 0.05 as in
+/// [`correlation_lags`]. Pairs with a sample marked invalid are skipped; the residuals are
+/// taken as zero-mean. Empty when fewer than 8 samples are valid.
+pub fn tapered_autocorrelation(residuals: &[f64], valid: &[bool]) -> Vec<f64> {
+    let n = residuals.len().min(valid.len());
+    let ok = |i: usize| valid[i] && residuals[i].is_finite();
+    if (0..n).filter(|&i| ok(i)).count() < 8 {
+        return Vec::new();
+    }
+    let cap = (n / 4).max(1);
+    let rho = |k: usize| -> f64 {
+        let (mut sxy, mut sxx, mut syy) = (0.0, 0.0, 0.0);
+        for i in 0..n - k {
+            if ok(i) && ok(i + k) {
+                let (x, y) = (residuals[i], residuals[i + k]);
+                sxy += x * y;
+                sxx += x * x;
+                syy += y * y;
+            }
+        }
+        if sxx > 0.0 && syy > 0.0 {
+            sxy / (sxx * syy).sqrt()
+        } else {
+            0.0
+        }
+    };
+    let mut raw = vec![1.0];
+    let mut first_low = cap;
+    for k in 1..cap {
+        let r = rho(k);
+        raw.push(r);
+        if r < 0.05 {
+            first_low = k;
+            break;
+        }
+    }
+    let lags = (2 * first_low).clamp(1, cap);
+    while raw.len() <= lags {
+        let k = raw.len();
+        raw.push(rho(k));
+    }
+    (0..=lags)
+        .map(|k| (1.0 - k as f64 / (lags as f64 + 1.0)) * raw[k])
+        .collect()
+}
+
+/// Covariance of least-squares parameters whose residuals have a known autocorrelation
+/// (from [`tapered_autocorrelation`] on a longer stretch of the same series) and variance
+/// `sigma2`: (JᵀJ)⁻¹·JᵀΩJ·(JᵀJ)⁻¹ with Ω_ij = σ²·ρ(|tᵢ − tⱼ|), `positions` tᵢ being each
+/// residual's place in that series. None when JᵀJ is singular or the lengths disagree.
+pub fn known_correlation_covariance(
+    jac: &DMatrix<f64>,
+    positions: &[usize],
+    sigma2: f64,
+    acf: &[f64],
+) -> Option<DMatrix<f64>> {
+    let m = jac.nrows();
+    if positions.len() != m || acf.is_empty() {
+        return None;
+    }
+    let bread = super::lm::inverse_normal_matrix(jac)?;
+    let omega = DMatrix::from_fn(m, m, |i, j| {
+        let k = positions[i].abs_diff(positions[j]);
+        acf.get(k).copied().unwrap_or(0.0) * sigma2
+    });
+    let meat = jac.transpose() * omega * jac;
+    Some(&bread * meat * &bread)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -126,5 +197,30 @@ mod tests {
             assert!((rel - 1.0).abs() < 0.15, "{rel}");
         }
         assert!(correlation_lags(&r) <= 4);
+    }
+    /// The variance of a mean of AR(1) noise from the series' own tapered
+    /// autocorrelation: σ²/(n(1−φ)²) (Box, Jenkins & Reinsel, §2.1.5), less the taper's
+    /// share, far above the naive σ²/n.
+    #[test]
+    fn known_correlation_gives_the_variance_of_a_correlated_mean() {
+        let (n, phi) = (20000usize, 0.8f64);
+        let mut rng = StdRng::seed_from_u64(5);
+        let normal = Normal::new(0.0, (1.0 - phi * phi).sqrt()).unwrap();
+        let mut prev = 0.0;
+        let x: Vec<f64> = (0..n)
+            .map(|_| {
+                prev = phi * prev + normal.sample(&mut rng);
+                prev
+            })
+            .collect();
+        let acf = tapered_autocorrelation(&x, &vec![true; n]);
+        assert!((acf[1] / (1.0 - 1.0 / acf.len() as f64) - phi).abs() < 0.03);
+        // A window of 200 samples fitted by its mean.
+        let m = 200;
+        let jac = DMatrix::from_element(m, 1, 1.0);
+        let pos: Vec<usize> = (0..m).collect();
+        let v = known_correlation_covariance(&jac, &pos, 1.0, &acf).unwrap()[(0, 0)];
+        let truth = (1.0 + phi) / (1.0 - phi) / m as f64; // σ² = 1, large-m form
+        assert!(v > 0.7 * truth && v < 1.1 * truth, "{v} vs {truth}");
     }
 }

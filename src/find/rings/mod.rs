@@ -5,6 +5,8 @@
 //! table filled in one pass through the screen map ([`radial`]).
 
 pub mod centre;
+pub mod glow;
+pub mod peaks;
 pub mod radial;
 pub mod symmetry;
 
