@@ -446,9 +446,7 @@ fn widen(flagged: &[bool], grow: usize) -> Vec<bool> {
     let m = flagged.len();
     let mut keep = vec![true; m];
     for (j, _) in flagged.iter().enumerate().filter(|(_, f)| **f) {
-        for k in j.saturating_sub(grow)..(j + grow + 1).min(m) {
-            keep[k] = false;
-        }
+        keep[j.saturating_sub(grow)..(j + grow + 1).min(m)].fill(false);
     }
     keep
 }
@@ -544,8 +542,8 @@ mod tests {
             }
         };
         let mut p = profile_of(&r, f, 1e-3);
-        for i in 0..r.len() {
-            if r[i] < 3.0 {
+        for (i, &ri) in r.iter().enumerate() {
+            if ri < 3.0 {
                 p.clipped[i] = true;
                 p.value[i] = 1.0;
             }

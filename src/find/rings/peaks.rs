@@ -667,8 +667,8 @@ impl LeastSquares for RingFit<'_> {
     }
 
     fn residuals(&self, p: &[f64], out: &mut [f64]) -> bool {
-        for i in 0..self.r.len() {
-            out[i] = (self.v[i] - self.model(p, self.r[i])) * self.w[i];
+        for (i, o) in out.iter_mut().enumerate().take(self.r.len()) {
+            *o = (self.v[i] - self.model(p, self.r[i])) * self.w[i];
         }
         out.iter().all(|x| x.is_finite())
     }
