@@ -446,9 +446,7 @@ fn widen(flagged: &[bool], grow: usize) -> Vec<bool> {
     let m = flagged.len();
     let mut keep = vec![true; m];
     for (j, _) in flagged.iter().enumerate().filter(|(_, f)| **f) {
-        for k in j.saturating_sub(grow)..(j + grow + 1).min(m) {
-            keep[k] = false;
-        }
+        keep[j.saturating_sub(grow)..(j + grow + 1).min(m)].fill(false);
     }
     keep
 }
