@@ -2,6 +2,7 @@
 //! sequence the library's stages and write outputs; the algorithms live below.
 
 pub mod args;
+pub mod electron;
 pub mod fringes;
 pub mod grating;
 pub mod inputs;
@@ -54,6 +55,9 @@ pub enum Command {
     /// Mean diameter, spread and size distribution of particles from their halo
     #[command(after_long_help = args::LASER_CAUTION)]
     Particles(particles::ParticlesArgs),
+    /// Lattice spacings from the rings of an electron-diffraction tube
+    #[command(after_long_help = electron::TUBE_CAUTION)]
+    Electron(electron::ElectronArgs),
     /// Render a synthetic photo with known truth (PHOTO.truth.json beside it)
     Simulate(simulate::SimulateArgs),
     /// Simulate a grating photo, measure it, and say where the files went
@@ -72,6 +76,7 @@ pub fn run(cli: Cli) -> Result<ExitCode, Error> {
         Command::Slit(a) => fringes::run_slit(&a),
         Command::Pinhole(a) => rings::run_pinhole(&a),
         Command::Particles(a) => particles::run(&a),
+        Command::Electron(a) => electron::run(&a),
         Command::Simulate(a) => simulate::run(&a),
         Command::Demo(a) => tools::demo(&a),
         Command::Schema => {

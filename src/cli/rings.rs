@@ -9,8 +9,8 @@ use super::inputs::InputBook;
 use super::output::{self, Clock};
 use crate::find::FindError;
 use crate::find::rings::{
-    Annulus, RadialCells, RadialOptions, RadialProfile, RingCentre, core_radius_px, refine_centre,
-    start_centre,
+    Annulus, RadialCells, RadialOptions, RadialProfile, RingCentre, core_radius_px, glow,
+    refine_centre, start_centre,
 };
 use crate::optics::airy::AiryModel;
 use crate::optics::pinhole::{self, PinholeInputs, RadialData};
@@ -66,11 +66,49 @@ const PROFILE_PIXELS: f64 = 3.5e6;
 /// Share of the frame's larger side within which the centre's gradients are read.
 const START_REACH: f64 = 0.3;
 
+/// Where a ring kind's scale comes from.
+pub(super) enum MapSource<'a> {
+    /// Made from the scale flags (ruler, points, grid, mm per px).
+    Flags(&'a ScaleArgs),
+    /// Already known (e.g. a uniform px scale for a reciprocal-space image).
+    Given(Box<ScreenMap>),
+}
+
 /// Decodes, picks the channel, finds the centre, makes the scale and tabulates the
 /// radial profile in screen mm.
 pub(super) fn measure_rings(
     photo_args: &PhotoArgs,
     scale: &ScaleArgs,
+    book: &mut InputBook,
+    wavelength_m: Option<f64>,
+    clock: &mut Clock,
+) -> Result<RingsMeasured, Error> {
+    measure_rings_with(
+        photo_args,
+        MapSource::Flags(scale),
+        CentreReach::Frame,
+        book,
+        wavelength_m,
+        clock,
+    )
+}
+
+/// How far out the centre refinement reads the rings.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum CentreReach {
+    /// As far as the frame reaches.
+    Frame,
+    /// Only inside a lit screen's round outline where the profile shows one (a
+    /// diffraction tube): the outline, the glass and the room beyond need not be
+    /// concentric with the beam.
+    InsideOutline,
+}
+
+/// [`measure_rings`] with the scale from `source` and the centre read within `reach`.
+pub(super) fn measure_rings_with(
+    photo_args: &PhotoArgs,
+    source: MapSource,
+    reach: CentreReach,
     book: &mut InputBook,
     wavelength_m: Option<f64>,
     clock: &mut Clock,
@@ -103,23 +141,31 @@ pub(super) fn measure_rings(
         .into());
     }
     clock.lap("centre start");
-    let stretch = scale.grid.as_ref().map(|_| grid_stretch(start_px, w, h));
-    let mut map = output::screen_map(
-        &photo.plane(scale_channel(wavelength_m)),
-        scale,
-        book,
-        stretch,
-        photo.info.exif.focal_length_35mm,
-    )?;
+    let mut map = match source {
+        MapSource::Flags(scale) => {
+            let stretch = scale.grid.as_ref().map(|_| grid_stretch(start_px, w, h));
+            output::screen_map(
+                &photo.plane(scale_channel(wavelength_m)),
+                scale,
+                book,
+                stretch,
+                photo.info.exif.focal_length_35mm,
+            )?
+        }
+        MapSource::Given(map) => *map,
+    };
     clock.lap("scale");
     let start_mm = map.to_mm(start_px);
     let mm_px = map.mm_per_px_at(start_px);
     let outer_mm = frame_reach_mm(&map, start_mm, w, h);
     let core_mm = core_radius_px(&cmap, start_px) * mm_px;
-    let annulus = Annulus {
+    let mut annulus = Annulus {
         inner_mm: (1.1 * core_mm).max(3.0 * mm_px),
         outer_mm,
     };
+    if reach == CentreReach::InsideOutline {
+        annulus = inside_outline(&plane, &map, start_mm, annulus, mm_px);
+    }
     let centre = refine_centre(&plane, &map, start_mm, annulus)?;
     clock.lap("centre");
     // Past some 3 megapixels every pixel adds little but time: the profile's bins hold
@@ -174,6 +220,44 @@ fn scale_channel(wavelength_m: Option<f64>) -> Channel {
     }
 }
 
+/// The centre refinement's annulus kept inside a lit screen's outline, from a coarse
+/// profile about the start (every few pixels, enough for the outline's step): out to the
+/// outline less 5 % and ten pixels, from beyond the spot's flank.
+fn inside_outline(
+    plane: &dyn crate::raster::Raster,
+    map: &ScreenMap,
+    start_mm: Vector2<f64>,
+    annulus: Annulus,
+    mm_px: f64,
+) -> Annulus {
+    let area_px = PI * (annulus.outer_mm / mm_px).powi(2);
+    let stride = (area_px / 1.0e6).sqrt().ceil().max(1.0) as usize;
+    let opts = RadialOptions {
+        sectors: 36,
+        bin_mm: 0.5 * mm_px * stride as f64,
+        r_max_mm: annulus.outer_mm,
+        stride,
+    };
+    let coarse = RadialCells::tabulate(plane, map, start_mm, &opts).profile(|_| true);
+    let px = mm_px * stride as f64;
+    let spot = glow::spot_reach_mm(&coarse, px);
+    match glow::tube_edge(&coarse, spot, px) {
+        Some(edge) => {
+            let outer = 0.95 * edge.radius_mm - 10.0 * mm_px;
+            let inner = annulus.inner_mm.max(spot);
+            if outer > inner + 40.0 * mm_px {
+                Annulus {
+                    inner_mm: inner,
+                    outer_mm: outer,
+                }
+            } else {
+                annulus
+            }
+        }
+        None => annulus,
+    }
+}
+
 fn as_profile(p: &RadialProfile) -> FringeProfile {
     FringeProfile {
         x_mm: p.r_mm.clone(),
@@ -212,6 +296,21 @@ fn grid_stretch(c: Vector2<f64>, w: f64, h: f64) -> (Vector2<f64>, Vector2<f64>)
 
 /// The record common to the ring kinds.
 pub(super) fn base_record(kind: &str, m: &RingsMeasured, book: &InputBook) -> Record {
+    base_record_with(
+        kind,
+        m,
+        book,
+        "screen flat and perpendicular to the beam; Fraunhofer (far-field) diffraction",
+    )
+}
+
+/// [`base_record`] with the kind's own statement of the screen's geometry.
+pub(super) fn base_record_with(
+    kind: &str,
+    m: &RingsMeasured,
+    book: &InputBook,
+    geometry: &str,
+) -> Record {
     let mut record = Record::new(kind, m.photo.info.clone(), output::scale_info(&m.map));
     record.setup.inputs = book.record.clone();
     record.warnings.extend(m.map.warnings.iter().cloned());
@@ -222,9 +321,7 @@ pub(super) fn base_record(kind: &str, m: &RingsMeasured, book: &InputBook) -> Re
          cells cut by the frame left out); centre refined over {} sectors in {} passes",
         m.cells.bin_mm, m.cells.sectors, m.centre.sectors_used, m.centre.iterations
     ));
-    record.assumptions.push(
-        "screen flat and perpendicular to the beam; Fraunhofer (far-field) diffraction".into(),
-    );
+    record.assumptions.push(geometry.into());
     record
         .assumptions
         .push("camera lens distortion negligible over the pattern".into());

@@ -16,7 +16,7 @@
 //!
 //! Rings are indexed by the ratios of their spacings ([`index_rings`]), which the camera
 //! length does not change, and a lattice constant is refined over all indexed rings with
-//! their joint covariance ([`refine_constant`]).
+//! their shared inputs in its budget ([`refine_constant`]).
 
 mod chi2;
 mod index;

@@ -8,6 +8,7 @@ pub mod centre;
 pub mod glow;
 pub mod peaks;
 pub mod radial;
+pub mod ridge;
 pub mod symmetry;
 
 pub use centre::{Annulus, RingCentre, refine_centre};

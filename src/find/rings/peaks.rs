@@ -28,9 +28,12 @@
 //! rings or more count, one over twice their median width is dropped too: an unresolved
 //! pair, whose single radius would mislead the indexing, or a wave of the glow.
 //!
-//! The uncertainties take the noise's correlation from the ring-free residuals of the
-//! whole range (a long series, where it is well determined) rather than from each ring's
-//! short window, and its size as the larger of the ring-free scatter and the window's own.
+//! The uncertainties take the noise's correlation along the radius from a long series,
+//! where it is well determined, rather than from each ring's short window: from the
+//! sectors' deviations from their mean profile where the radial table is at hand (rings
+//! and glow cancel there, [`NoiseSource`]), else from the glow fit's ring-free residuals.
+//! Its size is that of the bins' standard errors, or the window's own residual scatter
+//! where larger.
 
 use super::glow::{Glow, TubeEdge, spot_reach_mm, tube_edge};
 use super::radial::RadialProfile;
@@ -81,6 +84,40 @@ pub struct PeakOptions {
     /// The spot reaches at least this far, mm (e.g. the clipped core seen on the block
     /// map); the profile may show it reaching further.
     pub core_mm: f64,
+}
+
+/// Where the noise's correlation along the radius comes from.
+pub trait NoiseSource {
+    /// The tapered autocorrelation by lag in bins over [from_mm, to_mm], or None to have it
+    /// estimated from the ring-free residuals of the glow fit.
+    fn autocorrelation(
+        &self,
+        profile: &RadialProfile,
+        from_mm: f64,
+        to_mm: f64,
+    ) -> Option<Vec<f64>>;
+}
+
+/// No independent source: the glow fit's residuals tell.
+pub struct FromResiduals;
+
+impl NoiseSource for FromResiduals {
+    fn autocorrelation(&self, _: &RadialProfile, _: f64, _: f64) -> Option<Vec<f64>> {
+        None
+    }
+}
+
+/// The sectors' deviations from their mean profile tell (rings and glow cancel there).
+impl NoiseSource for super::radial::RadialCells {
+    fn autocorrelation(
+        &self,
+        profile: &RadialProfile,
+        from_mm: f64,
+        to_mm: f64,
+    ) -> Option<Vec<f64>> {
+        let acf = self.noise_autocorrelation(profile, from_mm, to_mm);
+        (!acf.is_empty()).then_some(acf)
+    }
 }
 
 /// A ring found on the glow.
@@ -145,6 +182,9 @@ pub struct RingSearch {
     se_floor_rel: f64,
     /// The rings' common σ as the filter saw it, mm: sets the clusters and their windows.
     ring_sigma: f64,
+    /// The noise's size in units of the bins' standard errors: 1 where the correlation
+    /// comes from the sectors (their scatter made the errors), else the glow's scatter.
+    noise_scale: f64,
 }
 
 impl RingSearch {
@@ -168,6 +208,7 @@ fn ring_shape(r: f64, p: &RingPeak) -> f64 {
 pub fn find_ring_peaks(
     profile: &RadialProfile,
     opts: &PeakOptions,
+    noise: &dyn NoiseSource,
 ) -> Result<RingSearch, FindError> {
     let n = profile.r_mm.len();
     if n < 16 {
@@ -231,7 +272,10 @@ pub fn find_ring_peaks(
             (profile.value[i] - g[i]) / se
         })
         .collect();
-    let noise_acf = tapered_autocorrelation(&z, &glow.kept);
+    let (noise_acf, noise_scale) = match noise.autocorrelation(profile, lo, hi) {
+        Some(acf) => (acf, 1.0),
+        None => (tapered_autocorrelation(&z, &glow.kept), glow.scatter),
+    };
     if noise_acf.is_empty() {
         return Err(FindError::Unmeasurable(
             "too little of the glow is free of rings to judge the noise on".into(),
@@ -251,6 +295,7 @@ pub fn find_ring_peaks(
         noise_acf,
         se_floor_rel,
         ring_sigma: f64::NAN,
+        noise_scale,
     };
     // Rings of one film share a width (the crystallites' size and the beam's divergence
     // set it): the scales at which the most prominent candidates answer best show it; only
@@ -667,8 +712,8 @@ impl LeastSquares for RingFit<'_> {
     }
 
     fn residuals(&self, p: &[f64], out: &mut [f64]) -> bool {
-        for (i, o) in out.iter_mut().enumerate().take(self.r.len()) {
-            *o = (self.v[i] - self.model(p, self.r[i])) * self.w[i];
+        for (o, ((&r, &v), &w)) in out.iter_mut().zip(self.r.iter().zip(&self.v).zip(&self.w)) {
+            *o = (v - self.model(p, r)) * w;
         }
         out.iter().all(|x| x.is_finite())
     }
@@ -744,17 +789,26 @@ fn fit_ring_with(
     let me = cands[k];
     let half = reach(search, &me, px);
     let (lo, hi) = search.range_mm;
-    let (from, to) = ((me.r - half).max(lo), (me.r + half).min(hi));
-    // Neighbours inside the window are fitted with it, sharing its σ; those outside whose
-    // tails reach in are held at their last fit (their own windows measure them).
-    let others = cands
+    // Neighbours within its reach are fitted with it, sharing its σ, and the window is
+    // widened to reach as far beyond them (a neighbour on the window's edge would be held
+    // by half its light); others whose tails reach in are held at their last fit (their
+    // own windows measure them).
+    let others: Vec<Candidate> = cands
         .iter()
         .enumerate()
         .filter(|&(j, _)| j != k)
-        .map(|(_, c)| *c);
+        .map(|(_, c)| *c)
+        .collect();
+    let near = |c: &Candidate| (c.r - me.r).abs() < half;
+    let span = others
+        .iter()
+        .filter(|c| free_neighbours && near(c))
+        .fold((me.r, me.r), |(a, b), c| (a.min(c.r), b.max(c.r)));
+    let (from, to) = ((span.0 - half).max(lo), (span.1 + half).min(hi));
     let (neighbours, outside): (Vec<Candidate>, Vec<Candidate>) = others
-        .filter(|c| (c.r - me.r).abs() < half + 3.0 * c.s)
-        .partition(|c| free_neighbours && c.r > from && c.r < to);
+        .into_iter()
+        .filter(|c| c.r + 3.0 * c.s > from && c.r - 3.0 * c.s < to)
+        .partition(|c| free_neighbours && near(c));
     let idx: Vec<usize> = (0..profile.r_mm.len())
         .filter(|&i| {
             let r = profile.r_mm[i];
@@ -922,10 +976,11 @@ fn judge(
     }
     let m = problem.r.len();
     let mut jac = DMatrix::zeros(m, p.len());
-    // The noise's size is the larger of the glow's ring-free scatter and this window's own
-    // (a ring the model does not quite describe); its correlation is the glow's.
+    // The noise's size is that of the bins' standard errors (from the sectors' scatter),
+    // or this window's own residuals where larger (light the model does not describe);
+    // its correlation is the noise's along the radius.
     let own = report.cost / (m.saturating_sub(p.len())).max(1) as f64;
-    let sigma2 = own.max(search.glow.scatter.powi(2));
+    let sigma2 = own.max(search.noise_scale.powi(2));
     let cov = if forward_difference_jacobian(problem, p, &report.residuals, &mut jac) {
         known_correlation_covariance(&jac, bins, sigma2, &search.noise_acf)
     } else {

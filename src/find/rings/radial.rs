@@ -7,6 +7,7 @@
 //! drag, and takes its standard error from the spread between sectors, which are made of
 //! different pixels and so are independent. Cells partly off the frame are dropped.
 
+use crate::fit::hac::tapered_autocorrelation;
 use crate::raster::Raster;
 use crate::scale::ScreenMap;
 use nalgebra::{Matrix3, Vector2};
@@ -240,6 +241,81 @@ impl RadialCells {
             }
         }
         out
+    }
+}
+
+impl RadialCells {
+    /// The correlation along the radius of the noise in one sector's profile, at lags
+    /// 0, 1, … bins (Bartlett-tapered, [`tapered_autocorrelation`]): from each sector's
+    /// relative deviation from `profile` between radii `from_mm` and `to_mm`, in which
+    /// the rings and the glow, the same in every sector, cancel. The mean profile's noise,
+    /// an average over independent sectors, is correlated alike. Empty where too few
+    /// cells are covered.
+    pub fn noise_autocorrelation(
+        &self,
+        profile: &RadialProfile,
+        from_mm: f64,
+        to_mm: f64,
+    ) -> Vec<f64> {
+        let b0 = ((from_mm / self.bin_mm).floor().max(0.0) as usize).min(self.bins);
+        let b1 = ((to_mm / self.bin_mm).ceil() as usize).min(self.bins);
+        if b1 <= b0 + 8 {
+            return Vec::new();
+        }
+        let gap = (b1 - b0) / 4 + 1;
+        let mut series = Vec::with_capacity(self.sectors * (b1 - b0 + gap));
+        let mut valid = Vec::with_capacity(series.capacity());
+        for s in 0..self.sectors {
+            for b in b0..b1 {
+                let m = profile.value.get(b).copied().unwrap_or(f64::NAN);
+                match self.cell(s, b) {
+                    Some(v) if m > 0.0 && self.cell_clipped(s, b) <= CLIPPED_SHARE => {
+                        series.push(v / m - 1.0);
+                        valid.push(true);
+                    }
+                    _ => {
+                        series.push(0.0);
+                        valid.push(false);
+                    }
+                }
+            }
+            // Sectors are not neighbours along the radius: a gap keeps their pairs apart.
+            series.extend(std::iter::repeat_n(0.0, gap));
+            valid.extend(std::iter::repeat_n(false, gap));
+        }
+        // Each sector's own level and slant (its share of the vignetting, a glow not quite
+        // round) is not noise: a quadratic in the radius is taken out of each.
+        let mut start = 0;
+        for _ in 0..self.sectors {
+            let end = start + (b1 - b0);
+            detrend(&mut series[start..end], &valid[start..end]);
+            start = end + gap;
+        }
+        tapered_autocorrelation(&series, &valid)
+    }
+}
+
+/// Removes the least-squares quadratic from the valid samples of `y` (index as abscissa).
+fn detrend(y: &mut [f64], valid: &[bool]) {
+    let n = y.len().max(1) as f64;
+    let mut ata = Matrix3::zeros();
+    let mut atb = nalgebra::Vector3::zeros();
+    for (i, (&v, &ok)) in y.iter().zip(valid).enumerate() {
+        if ok {
+            let x = 2.0 * i as f64 / n - 1.0;
+            let row = nalgebra::Vector3::new(1.0, x, x * x);
+            ata += row * row.transpose();
+            atb += row * v;
+        }
+    }
+    let Some(c) = ata.try_inverse().map(|m| m * atb) else {
+        return;
+    };
+    for (i, (v, &ok)) in y.iter_mut().zip(valid).enumerate() {
+        if ok {
+            let x = 2.0 * i as f64 / n - 1.0;
+            *v -= c.x + c.y * x + c.z * x * x;
+        }
     }
 }
 

@@ -1,8 +1,9 @@
-//! Refining the lattice constant(s) over all indexed rings by generalized least squares
-//! (Aitken 1935): 1/d² is linear in 1/a² (and 1/c²), so the fit is linear in those with
-//! the full covariance of 1/d², which carries the voltage, distance and scale the rings
-//! share. Their common part cannot average out over rings, and GLS does not pretend it does.
-//! The budget follows each shared input through to a and c by the chain rule.
+//! Refining the lattice constant(s) over all indexed rings by least squares: 1/d² is
+//! linear in 1/a² (and 1/c²), so the fit is linear in those, weighted by the covariance of
+//! 1/d² from the rings' own radii. The voltage, distance and scale the rings share cannot
+//! average out over rings: the budget follows each of them through to a and c by the chain
+//! rule, so they count in full, once (weighting by them as well would bias the estimate,
+//! see [`refine_constant`]).
 
 use super::index::{Indexing, MeasuredSpacing};
 use super::{Family, Lattice};
@@ -30,6 +31,18 @@ impl JointSpacings {
             self.inputs.iter().map(|i| i.u * i.u),
         ));
         &self.jacobian * u2 * self.jacobian.transpose()
+    }
+
+    /// Covariance of the spacings from the inputs that move one spacing alone (the rings'
+    /// own radii), m²: what sets their ratios.
+    pub fn own_covariance(&self) -> DMatrix<f64> {
+        let n = self.d_m.len();
+        DMatrix::from_fn(n, n, |i, j| {
+            (0..self.inputs.len())
+                .filter(|&k| self.own(k, i) && self.own(k, j))
+                .map(|k| self.jacobian[(i, k)] * self.jacobian[(j, k)] * self.inputs[k].u.powi(2))
+                .sum()
+        })
     }
 
     /// Whether input `k` moves spacing `i` alone.
@@ -105,8 +118,9 @@ pub struct Refinement {
 }
 
 /// Refines a (and c for hexagonal hk.l, when rings with l ≠ 0 and l = 0 are both
-/// indexed) by generalized least squares on 1/d² with the spacings' full covariance; the
-/// constants of `prior`, if any, are only compared with.
+/// indexed) by least squares on 1/d² weighted by the rings' own covariance, with every
+/// input, shared or not, in the budget; the constants of `prior`, if any, are only
+/// compared with.
 pub fn refine_constant(
     spacings: &JointSpacings,
     indexing: &Indexing,
@@ -151,7 +165,12 @@ pub fn refine_constant(
     });
     let q = DMatrix::from_fn(n, 1, |i, _| spacings.d_m[i].powi(-2));
     let dq_dd: Vec<f64> = spacings.d_m.iter().map(|d| -2.0 * d.powi(-3)).collect();
-    let cov_d = spacings.covariance();
+    // Weighted by the rings' own uncertainties only. The inputs every ring shares
+    // (voltage, distance, scale) scale all spacings together and say nothing about which
+    // ring to trust; put into the weights, they pull a GLS estimate below every ring's
+    // own value when the rings scatter (Peelle's Pertinent Puzzle; D'Agostini, Nucl.
+    // Instrum. Methods A 346:306, 1994). They reach a and c through the chain rule below.
+    let cov_d = spacings.own_covariance();
     let cov_q = DMatrix::from_fn(n, n, |i, j| dq_dd[i] * cov_d[(i, j)] * dq_dd[j]);
     let w = cov_q.cholesky().map(|c| c.inverse()).ok_or_else(|| {
         OpticsError::Unsolvable(

@@ -69,7 +69,7 @@ const GOLD_LIKE: [Ring; 5] = [
 #[test]
 fn nearly_noise_free_rings_come_back_to_a_few_micrometres() {
     let p = profile(&GOLD_LIKE, 1e-4, 1);
-    let s = find_ring_peaks(&p, &opts()).unwrap();
+    let s = find_ring_peaks(&p, &opts(), &FromResiduals).unwrap();
     assert_eq!(
         s.peaks.len(),
         GOLD_LIKE.len(),
@@ -98,7 +98,7 @@ fn rings_in_correlated_noise_are_found_within_their_uncertainty() {
     let (mut within, mut all) = (0, 0);
     for seed in 1..=8 {
         let p = profile(&GOLD_LIKE, 0.002, seed);
-        let s = find_ring_peaks(&p, &opts()).unwrap();
+        let s = find_ring_peaks(&p, &opts(), &FromResiduals).unwrap();
         assert_eq!(
             s.peaks.len(),
             GOLD_LIKE.len(),
@@ -127,7 +127,7 @@ fn rings_in_correlated_noise_are_found_within_their_uncertainty() {
 fn glow_and_noise_alone_give_no_rings() {
     for seed in 1..=10 {
         let p = profile(&[], 0.003, seed);
-        let s = find_ring_peaks(&p, &opts()).unwrap();
+        let s = find_ring_peaks(&p, &opts(), &FromResiduals).unwrap();
         assert!(s.peaks.is_empty(), "seed {seed}: {:?}", s.peaks);
         assert!(s.edge.is_some());
     }
@@ -139,7 +139,7 @@ fn a_ring_too_faint_for_the_noise_does_not_count() {
     let rings = [(15.0, 0.33, 0.001), (25.0, 0.33, 0.03)];
     for seed in 7..=10 {
         let p = profile(&rings, 0.003, seed);
-        let s = find_ring_peaks(&p, &opts()).unwrap();
+        let s = find_ring_peaks(&p, &opts(), &FromResiduals).unwrap();
         assert_eq!(
             s.peaks.len(),
             1,
@@ -162,7 +162,7 @@ fn the_search_stops_where_the_frame_cuts_the_pattern() {
             p.std_error[i] = f64::NAN;
         }
     }
-    let s = find_ring_peaks(&p, &opts()).unwrap();
+    let s = find_ring_peaks(&p, &opts(), &FromResiduals).unwrap();
     let seen = s.frame_cut_mm.unwrap();
     assert!((seen - cut).abs() < 2.0 * BIN, "{seen}");
     assert!(s.edge.is_none());
