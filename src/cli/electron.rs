@@ -155,6 +155,7 @@ pub fn run(args: &ElectronArgs) -> Result<ExitCode, Error> {
         &mut clock,
     )?;
     let px_mm = m.map.mm_per_px_at(m.centre.px);
+    beam_on(&m.radial, px_mm)?;
     let search = find_ring_peaks(
         &m.radial,
         &PeakOptions {
@@ -256,27 +257,68 @@ fn reciprocal_scale(record: &mut Record, mode: &Mode) {
     }
 }
 
+/// The undiffracted beam's spot outshines everything else on a tube's screen: where the
+/// centre found is neither saturated nor five times brighter than the profile's median, no
+/// beam reaches the screen.
+fn beam_on(profile: &crate::find::rings::RadialProfile, px_mm: f64) -> Result<(), FindError> {
+    let near: Vec<f64> = (0..profile.r_mm.len())
+        .filter(|&i| profile.r_mm[i] <= 5.0 * px_mm && profile.has(i))
+        .map(|i| profile.value[i])
+        .collect();
+    let clipped =
+        (0..profile.r_mm.len()).any(|i| profile.r_mm[i] <= 5.0 * px_mm && profile.clipped[i]);
+    let mut all: Vec<f64> = profile
+        .value
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .collect();
+    all.sort_unstable_by(f64::total_cmp);
+    let median = all.get(all.len() / 2).copied().unwrap_or(0.0);
+    let peak = near.iter().copied().fold(0.0, f64::max);
+    if clipped || (median > 0.0 && peak > 5.0 * median) {
+        Ok(())
+    } else {
+        Err(FindError::NoPattern(format!(
+            "no beam spot: the brightest place in the photo is only {:.1}× the light around \
+             it, where the undiffracted beam's spot would outshine everything: the beam \
+             looks off or blocked. Check the heater and anode supplies and that the tube \
+             is aimed at the camera (kilovolts: only through the supply's interlocked leads)",
+            if median > 0.0 { peak / median } else { 0.0 }
+        )))
+    }
+}
+
 /// What a photo without rings showed, and what to try.
 fn no_rings(search: &RingSearch, reciprocal: bool) -> FindError {
     let unit = if reciprocal { "px" } else { "mm" };
     let (lo, hi) = search.range_mm;
-    let seen = match search.rejected.iter().max_by(|a, b| {
-        a.radius_mm
-            .total_cmp(&b.radius_mm)
-            .then(std::cmp::Ordering::Equal)
-    }) {
-        Some(_) => format!(
-            "{} candidate(s) did not count, e.g. at {:.2} {unit}: {}",
-            search.rejected.len(),
-            search.rejected[0].radius_mm,
-            search.rejected[0].why
-        ),
-        None => "nothing stood out of the glow at all".into(),
+    let seen = if search.rejected.is_empty() {
+        "nothing stood out of the glow at all".to_string()
+    } else {
+        let mut listed: Vec<&crate::find::rings::peaks::Rejected> =
+            search.rejected.iter().collect();
+        listed.sort_by(|a, b| a.radius_mm.total_cmp(&b.radius_mm));
+        format!(
+            "{} candidate(s) did not count: {}",
+            listed.len(),
+            listed
+                .iter()
+                .take(4)
+                .map(|r| format!("at {:.2} {unit}, {}", r.radius_mm, r.why))
+                .collect::<Vec<_>>()
+                .join("; ")
+        )
+    };
+    let edge = if search.edge.is_some() {
+        "the tube's edge"
+    } else {
+        "the end of the profile"
     };
     FindError::NoPattern(format!(
-        "no ring stands out of the glow between the spot and the tube's edge ({lo:.2}–{hi:.2} \
-         {unit}): {seen}. Check that the beam is on and the film in it, darken the room, \
-         expose longer (the spot may saturate) or raise the voltage for sharper rings"
+        "no ring stands out of the glow between the spot and {edge} ({lo:.2}–{hi:.2} \
+         {unit}): {seen}. Check that the film is in the beam, darken the room, expose \
+         longer (the spot may saturate) or raise the voltage for sharper rings"
     ))
 }
 
@@ -381,10 +423,16 @@ fn frame_warnings(m: &RingsMeasured, search: &RingSearch, unit: &str) -> Vec<Str
         }
     }
     if let Some(cut) = search.frame_cut_mm {
-        out.push(format!(
-            "the frame cuts the pattern at r = {cut:.2} {unit} before the tube's edge: rings \
-             beyond it are off the frame and not measured; frame the whole screen"
-        ));
+        out.push(match search.edge {
+            Some(_) => format!(
+                "the frame cuts the pattern at r = {cut:.2} {unit} before the tube's edge: \
+                 rings beyond it are off the frame and not measured; frame the whole screen"
+            ),
+            None => format!(
+                "the pattern runs off the frame beyond r = {cut:.2} {unit} (no tube outline \
+                 in the photo): rings beyond it are not measured"
+            ),
+        });
     }
     out
 }

@@ -563,21 +563,57 @@ fn calibrate(
         ))
         .into());
     }
-    let (indexing, cal) = index_and_calibrate(
-        &radii,
-        reference,
-        voltage,
-        kind,
-        given.map(|g| g.value),
-        scale,
-    )?;
+    // As for indexing alone: where the known film does not fit all rings, the ring
+    // farthest off the calibrated radii (in its own uncertainties) is left out, up to a
+    // quarter of them, keeping three.
+    let n = radii.len();
+    let mut keep: Vec<usize> = (0..n).collect();
+    let mut left_out: Vec<(usize, f64)> = Vec::new();
+    let mut first = None;
+    let (indexing, cal, keep) = loop {
+        let sub: Vec<RingRadius> = keep.iter().map(|&i| radii[i].clone()).collect();
+        let (indexing, cal) = index_and_calibrate(
+            &sub,
+            reference,
+            voltage,
+            kind,
+            given.map(|g| g.value),
+            scale,
+        )?;
+        if !indexing.poor_fit || keep.len() <= 3 || left_out.len() >= n / 4 {
+            break (indexing, cal, keep);
+        }
+        let Some((j, z)) = (0..sub.len())
+            .map(|j| (j, (cal.residuals_mm[j] / sub[j].u_mm).abs()))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+        else {
+            break (indexing, cal, keep);
+        };
+        first.get_or_insert((indexing, cal, keep.clone()));
+        left_out.push((keep.remove(j), z));
+    };
+    let (indexing, cal, keep) = match (indexing.poor_fit, first) {
+        (true, Some(all)) => {
+            left_out.clear();
+            all
+        }
+        _ => (indexing, cal, keep),
+    };
     out.warnings.extend(indexing.warnings.iter().cloned());
     out.warnings.extend(cal.warnings.iter().cloned());
     out.assumptions.extend(indexing.assumptions.iter().cloned());
     out.assumptions.extend(cal.assumptions.iter().cloned());
     out.assumptions.push(indexing_note(&indexing));
-    for (i, refl) in indexing.best.reflections.iter().enumerate() {
-        out.index[i] = Some(refl.label.clone());
+    for (i, z) in &left_out {
+        out.warnings.push(format!(
+            "ring {} was left out of the calibration: its radius lies {z:.1} standard \
+             uncertainties off the known film's (two rings seen as one, or light not of the \
+             film)",
+            i + 1
+        ));
+    }
+    for (j, refl) in indexing.best.reflections.iter().enumerate() {
+        out.index[keep[j]] = Some(refl.label.clone());
     }
     let name = kind.length_name();
     let l = &cal.length;

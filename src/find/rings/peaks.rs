@@ -303,9 +303,11 @@ pub fn find_ring_peaks(
     // than 1.2 of its σ are one (two equal Gaussians that close show a single maximum).
     let mut strongest = suppress(&found, 0.0);
     strongest.sort_by(|a, b| b.z.total_cmp(&a.z));
+    // The clearest answers only: those at least half as strong as the strongest.
+    let z_max = strongest.first().map_or(0.0, |c| c.z);
     let clear = strongest
         .iter()
-        .filter(|c| c.z >= MIN_SIGNIFICANCE)
+        .filter(|c| c.z >= MIN_SIGNIFICANCE.max(0.5 * z_max))
         .count()
         .max(1);
     let mut widths: Vec<f64> = strongest
@@ -765,6 +767,9 @@ impl LeastSquares for RingFit<'_> {
 /// a neighbour, and judges it. Where that fit does not converge (a spurious neighbour
 /// whose height goes to nothing leaves its position free to drift), the ring is fitted
 /// again with its neighbours held at their last fit.
+///
+/// A ring that comes out wider than its window was made for is fitted again in a window
+/// for its fitted width (twice at most): the filter's scale is only a first guess.
 fn fit_ring(
     profile: &RadialProfile,
     search: &RingSearch,
@@ -772,10 +777,27 @@ fn fit_ring(
     k: usize,
     px: f64,
 ) -> Result<RingPeak, Verdict> {
-    match fit_ring_with(profile, search, cands, k, px, true) {
-        Err(v) if v.unconverged => fit_ring_with(profile, search, cands, k, px, false),
-        other => other,
+    let mut cands = cands.to_vec();
+    let mut out = Err(Verdict::shape("not fitted"));
+    for _ in 0..3 {
+        out = match fit_ring_with(profile, search, &cands, k, px, true) {
+            Err(v) if v.unconverged => fit_ring_with(profile, search, &cands, k, px, false),
+            other => other,
+        };
+        let fitted = match &out {
+            Ok(p) => Some((p.fwhm_mm / FWHM_PER_SIGMA, p.radius_mm, p.contrast)),
+            Err(v) => v.fitted,
+        };
+        match fitted {
+            Some((s, r, a)) if s > 1.3 * cands[k].s && s.is_finite() => {
+                cands[k].s = s;
+                cands[k].r = r;
+                cands[k].a = a;
+            }
+            _ => break,
+        }
     }
+    out
 }
 
 fn fit_ring_with(
@@ -863,6 +885,7 @@ fn fit_ring_with(
         v.unconverged = matches!(e, crate::fit::FitError::NotConverged { .. });
         v
     })?;
+    let fitted = (report.params[S], report.params[R], report.params[A]);
     judge(
         profile,
         &problem,
@@ -876,6 +899,10 @@ fn fit_ring_with(
         search,
         px,
     )
+    .map_err(|mut v| {
+        v.fitted = Some(fitted);
+        v
+    })
 }
 
 /// What a ring's fit was made over.
@@ -900,6 +927,8 @@ struct Verdict {
     significance: f64,
     /// Its fit ran out of iterations or steps.
     unconverged: bool,
+    /// Its fitted (σ, radius, height), where the fit converged.
+    fitted: Option<(f64, f64, f64)>,
     why: String,
 }
 
@@ -909,6 +938,7 @@ impl Verdict {
             shape: true,
             significance: 0.0,
             unconverged: false,
+            fitted: None,
             why: why.into(),
         }
     }
@@ -918,6 +948,7 @@ impl Verdict {
             shape: false,
             significance,
             unconverged: false,
+            fitted: None,
             why: why.into(),
         }
     }
