@@ -303,7 +303,13 @@ fn rings_off_the_frame_are_warned_about_and_a_centre_off_it_is_refused() {
     img.crop_imm(left, 0, img.width() - left, img.height())
         .save(b.path("cut.png"))
         .unwrap();
-    let shift = |i: usize, v: f64| if i.is_multiple_of(2) { v - left as f64 } else { v };
+    let shift = |i: usize, v: f64| {
+        if i.is_multiple_of(2) {
+            v - left as f64
+        } else {
+            v
+        }
+    };
     let r = &truth["ruler"];
     let ends = [
         r["start_px"][0].as_f64().unwrap(),
